@@ -1,0 +1,43 @@
+# Two commands for a fresh clone: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+HOST ?= 127.0.0.1
+PORT ?= 8000
+DEMO_DB ?= .foldwise/demo.db
+
+.PHONY: demo test lint unit browser-deps bench clean
+
+$(VENV)/.installed-test: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[test]'
+	touch $@
+
+$(VENV)/.installed: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e .
+	touch $@
+
+demo: $(VENV)/.installed
+	$(VENV)/bin/foldwise demo --db $(DEMO_DB) --host $(HOST) --port $(PORT)
+
+# Chromium comes from Debian's packages (a browser download of the test tools' own does not work
+# here); installed when missing and we may, otherwise the browser tests say why they cannot run.
+browser-deps:
+	@command -v chromium >/dev/null 2>&1 || { \
+	  if [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null; \
+	  else echo "chromium is missing: install Debian's chromium package for the browser tests"; fi; }
+
+lint: $(VENV)/.installed-test
+	$(PY) -m ruff check app tests demo_data
+
+unit: $(VENV)/.installed-test
+	$(PY) -m pytest
+
+test: browser-deps lint unit
+
+clean:
+	rm -rf $(VENV) .foldwise build *.egg-info

@@ -1,0 +1,78 @@
+"""What a run returns: the payload, read as tables, with ways to keep it."""
+
+from __future__ import annotations
+
+from functools import cached_property
+
+import pandas as pd
+
+from foldwise import frames
+from foldwise.payload import AssessmentPayload
+
+
+class Assessment:
+    """One nested cross-validation with every inner and outer score.
+
+    Tables (pandas DataFrames): ``inner_scores``, ``outer_scores``, ``winners`` (overall fold winners)
+    and ``family_winners``; ``summary()`` per family; ``save(...)`` into a store, ``push(...)`` to a
+    server.
+    """
+
+    def __init__(self, payload: AssessmentPayload):
+        self.payload = payload
+
+    def __repr__(self) -> str:
+        design = self.payload.design
+        return (f"<Assessment {self.name!r}: {design.n_repeats} × {design.n_outer_folds} outer × "
+                f"{design.n_inner_folds} inner, {len(self.payload.configurations)} configurations>")
+
+    @property
+    def uuid(self) -> str:
+        return str(self.payload.uuid)
+
+    @property
+    def name(self) -> str:
+        return self.payload.name
+
+    @property
+    def selection_metric(self) -> str:
+        return self.payload.design.selection_metric
+
+    @cached_property
+    def inner_scores(self) -> pd.DataFrame:
+        return frames.inner_frame(self.payload)
+
+    @cached_property
+    def outer_scores(self) -> pd.DataFrame:
+        return frames.outer_frame(self.payload)
+
+    @cached_property
+    def winners(self) -> pd.DataFrame:
+        return frames.winners_frame(self.inner_scores, self.outer_scores, self.selection_metric)
+
+    @cached_property
+    def family_winners(self) -> pd.DataFrame:
+        return frames.winners_frame(self.inner_scores, self.outer_scores, self.selection_metric,
+                                    flag="family_winner")
+
+    def summary(self, metric: str | None = None) -> pd.DataFrame:
+        """Per family: mean, sd, min and max of its fold winners' outer scores."""
+        return frames.family_summary(self.outer_scores, metric or self.selection_metric)
+
+    @property
+    def nested_estimate(self) -> tuple[float, float]:
+        """Mean and sd of the overall fold winners' outer scores: the score of the selection procedure."""
+        scores = self.winners["outer_score"]
+        return float(scores.mean()), float(scores.std())
+
+    def save(self, target: str) -> bool:
+        """Write into a store (a path or SQLAlchemy URL) with no server; True when newly stored."""
+        from foldwise.client import save
+
+        return save(self.payload, target)
+
+    def push(self, url: str, token: str | None = None, **options) -> bool:
+        """Send to a foldwise server; spooled locally when it cannot be reached."""
+        from foldwise.client import push
+
+        return push(self.payload, url, token=token, **options)

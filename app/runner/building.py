@@ -1,0 +1,112 @@
+"""Turn the fits of a run into the payload that describes it."""
+
+from __future__ import annotations
+
+import platform
+from importlib.metadata import PackageNotFoundError, version
+
+import numpy as np
+
+from foldwise.payload import (
+    AssessmentPayload,
+    Configuration,
+    Design,
+    Failure,
+    Family,
+    FoldChoice,
+    InnerScores,
+    OuterFold,
+    OuterScores,
+    Prediction,
+    canonical_params,
+)
+from foldwise.runner.fitting import FitResult
+from foldwise.runner.space import Space
+from foldwise.runner.splits import Layout
+
+_RECORDED_PACKAGES = ("foldwise", "scikit-learn", "numpy", "scipy", "pandas", "joblib")
+
+
+def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, classes, classifier,
+                  results: dict[tuple, FitResult], choices, refit_all, n_features, grouped) -> AssessmentPayload:
+    splits, targets = layout.splits, np.asarray(y)
+    inner, outer = _columns(metrics, True), _columns(metrics, False)
+    predictions, failures = [], []
+    for key in sorted(results):
+        result = results[key]
+        split = splits[key[1]]
+        where = {"repeat": split.repeat, "outer_fold": split.outer_fold, "config": key[-1]}
+        if key[0] == "inner":
+            _append(inner, result, where, inner_fold=key[2])
+        else:
+            _append(outer, result, where)
+            if result.prediction is not None:
+                kind, values = result.prediction
+                predictions.append(Prediction.from_array(values, kind=kind, **where))
+        if result.error:
+            failures.append(Failure(level=key[0], inner_fold=key[2] if key[0] == "inner" else None,
+                                    message=result.error, **where))
+
+    family_winners, overall_winners = [], []
+    for split, (winners, overall) in zip(splits, choices, strict=True):
+        fold = {"repeat": split.repeat, "outer_fold": split.outer_fold}
+        family_winners += [FoldChoice(config=c, **fold) for c in winners if c is not None]
+        overall_winners.append(FoldChoice(config=overall, **fold))
+
+    return AssessmentPayload(
+        name=name, dataset=dataset,
+        design=Design(
+            task="classification" if classifier else "regression", n_samples=len(targets),
+            n_features=n_features, n_repeats=layout.n_repeats, n_outer_folds=layout.n_outer_folds,
+            n_inner_folds=layout.n_inner_folds, outer_splitter=layout.outer_splitter,
+            inner_splitter=layout.inner_splitter, grouped=grouped, refit_all=refit_all, metrics=metrics,
+            classes=classes),
+        families=[Family(name=family, estimator=repr(estimator),
+                         estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}")
+                  for family, estimator in space.estimators.items()],
+        configurations=[Configuration(id=c.id, family=c.family, params=canonical_params(c.params))
+                        for c in space.candidates],
+        outer_folds=[OuterFold(repeat=s.repeat, outer_fold=s.outer_fold, n_train=len(s.train),
+                               test_indices=s.test.tolist(), y_true=targets[s.test].tolist()) for s in splits],
+        inner_scores=InnerScores(**inner), outer_scores=OuterScores(**outer),
+        family_winners=family_winners, overall_winners=overall_winners,
+        predictions=predictions, failures=failures,
+        versions=package_versions(), seeds=_seeds(space, layout),
+        total_fit_time=float(sum(result.fit_time for result in results.values())),
+    )
+
+
+def package_versions() -> dict[str, str]:
+    found = {"python": platform.python_version()}
+    for package in _RECORDED_PACKAGES:
+        try:
+            found[package] = version(package)
+        except PackageNotFoundError:
+            pass
+    return found
+
+
+def _columns(metrics, inner: bool) -> dict[str, list]:
+    names = ["repeat", "outer_fold", "config", "metric", "score", "fit_time", "score_time"]
+    return {name: [] for name in names + (["inner_fold"] if inner else [])}
+
+
+def _append(columns, result: FitResult, where, **extra) -> None:
+    for position, metric in enumerate(result.scores):
+        score = result.scores[metric]
+        for name, value in {**where, **extra}.items():
+            columns[name].append(value)
+        columns["metric"].append(position)
+        columns["score"].append(None if score != score else score)  # NaN travels as null
+        columns["fit_time"].append(result.fit_time)
+        columns["score_time"].append(result.score_time)
+
+
+def _seeds(space: Space, layout: Layout) -> dict:
+    seeds = {"outer_splitter": layout.outer_splitter, "inner_splitter": layout.inner_splitter}
+    for family, estimator in space.estimators.items():
+        found = {key: repr(value) for key, value in estimator.get_params().items()
+                 if key == "random_state" or key.endswith("__random_state")}
+        if found:
+            seeds[family] = found
+    return seeds

@@ -1,0 +1,77 @@
+"""One fit: clone, set parameters, fit on some rows, score (and predict) on others."""
+
+from __future__ import annotations
+
+import time
+import traceback
+from dataclasses import dataclass
+
+import numpy as np
+from sklearn.base import clone
+from sklearn.utils import _safe_indexing
+
+
+@dataclass(frozen=True)
+class FitTask:
+    key: tuple  # ("inner", outer position, inner fold, config) or ("outer", outer position, config)
+    config: int
+    train: np.ndarray
+    test: np.ndarray
+    predict: bool = False
+
+
+@dataclass
+class FitResult:
+    key: tuple
+    scores: dict[str, float]  # NaN for every metric when the fit or the scoring failed
+    fit_time: float
+    score_time: float
+    cpu_time: float
+    prediction: tuple[str, np.ndarray] | None = None
+    error: str | None = None
+
+
+def run_fit(task: FitTask, estimator, params, X, y, scorer, metrics, classes) -> FitResult:
+    """Fit a fresh clone, so no two fits share state, and record whatever happens."""
+    started_cpu = time.process_time()
+    fit_time = score_time = 0.0
+    try:
+        model = clone(estimator).set_params(**clone(params, safe=False))
+        started = time.perf_counter()
+        model.fit(_safe_indexing(X, task.train), _safe_indexing(y, task.train))
+        fit_time = time.perf_counter() - started
+        X_test, y_test = _safe_indexing(X, task.test), _safe_indexing(y, task.test)
+        started = time.perf_counter()
+        scores = scorer(model, X_test, y_test)
+        scores = {metric: float(scores[metric]) for metric in metrics}
+        prediction = outer_predictions(model, X_test, classes) if task.predict else None
+        score_time = time.perf_counter() - started
+    except Exception as error:  # a failing fit is data, not a crash: it is kept with its message
+        message = "".join(traceback.format_exception_only(error)).strip()
+        return FitResult(task.key, dict.fromkeys(metrics, np.nan), fit_time, score_time,
+                         time.process_time() - started_cpu, None, message)
+    return FitResult(task.key, scores, fit_time, score_time, time.process_time() - started_cpu, prediction)
+
+
+def outer_predictions(model, X_test, classes) -> tuple[str, np.ndarray]:
+    """Class probabilities where the model has them, else decision values, else predictions.
+
+    Probability columns follow the assessment's class order, so folds whose training rows lack a
+    class still line up (the missing class gets probability 0).
+    """
+    if classes is None:
+        return "predict", np.asarray(model.predict(X_test), dtype=float)
+    if hasattr(model, "predict_proba"):
+        proba = np.asarray(model.predict_proba(X_test), dtype=float)
+        aligned = np.zeros((proba.shape[0], len(classes)))
+        aligned[:, _positions(model.classes_, classes)] = proba
+        return "proba", aligned
+    if hasattr(model, "decision_function"):
+        return "decision", np.asarray(model.decision_function(X_test), dtype=float)
+    labels = model.predict(X_test)
+    return "predict", _positions(labels, classes).astype(float)
+
+
+def _positions(labels, classes) -> np.ndarray:
+    lookup = {label: position for position, label in enumerate(classes)}
+    return np.array([lookup[label] for label in np.asarray(labels).tolist()])

@@ -1,0 +1,175 @@
+"""Nested cross-validation with every fit of every outer fold in one parallel pool."""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Iterable
+
+import numpy as np
+from joblib import Parallel, delayed
+from sklearn.base import is_classifier
+from sklearn.metrics import check_scoring, get_scorer_names
+from sklearn.model_selection import GridSearchCV, RandomizedSearchCV
+from sklearn.model_selection._search import BaseSearchCV
+from tqdm.auto import tqdm
+
+from foldwise.assessment import Assessment
+from foldwise.runner.building import build_payload
+from foldwise.runner.fitting import FitResult, FitTask, run_fit
+from foldwise.runner.selection import select_in_fold
+from foldwise.runner.space import Space, space_from
+from foldwise.runner.splits import Layout, lay_out
+from foldwise.runner.whole_search import nested_whole_search
+
+
+def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
+              name=None, dataset=None, refit_all=True, keep_predictions=True) -> Assessment:
+    """Run a nested cross-validation and keep every score.
+
+    Parameters
+    ----------
+    space : dict or search object
+        ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them, or a
+        ``GridSearchCV`` / ``RandomizedSearchCV`` (expanded into its candidates and run in the one
+        pool), or any other ``BaseSearchCV`` (fitted whole on each outer training set).
+    outer, inner : int or splitter
+        Resolved with ``check_cv``: stratified for classifiers. A search object's own ``cv`` is its
+        inner splitter.
+    scoring : str or list of str, optional
+        scikit-learn scorer names; the first selects. Defaults to accuracy (classifiers) or r2.
+    groups : array-like, optional
+        Group labels, passed to the outer splitter and, restricted to the outer training rows, to
+        the inner one.
+    n_jobs : int, optional
+        Workers of the one joblib pool; ``joblib.parallel_config(backend=...)`` picks where they run.
+    refit_all : bool
+        Refit every configuration on every outer training set (default), or only the family winners.
+    keep_predictions : bool
+        Keep each outer fit's test predictions (float64).
+    """
+    if isinstance(space, BaseSearchCV) and not isinstance(space, GridSearchCV | RandomizedSearchCV):
+        return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
+                                   progress=progress, name=name, dataset=dataset,
+                                   keep_predictions=keep_predictions)
+    if isinstance(space, BaseSearchCV):
+        inner = space.cv if space.cv is not None else inner
+        scoring = scoring if scoring is not None else space.scoring
+    resolved = space_from(space)
+    classifier = _task_of(resolved)
+    metrics = resolve_metrics(scoring, classifier)
+    _check_lengths(X, y, groups)
+    layout = lay_out(X, y, groups, outer=outer, inner=inner, classifier=classifier)
+    classes = np.unique(np.asarray(y)).tolist() if classifier else None
+    scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
+    runner = _Runner(resolved, X, y, scorer, metrics, classes)
+
+    n_configs = len(resolved.candidates)
+    n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
+    with tqdm(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
+            Parallel(n_jobs=n_jobs, return_as="generator_unordered") as pool:
+        first = [*_inner_tasks(layout, n_configs)]
+        if refit_all:
+            first += _outer_tasks(layout, range(n_configs), keep_predictions)
+        results = runner.run(pool, first, bar)
+        choices = _select(layout, resolved, results, metrics[0])
+        if not refit_all:
+            wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
+            bar.total = len(first) + len(wanted)
+            bar.refresh()
+            results.update(runner.run(pool, _outer_tasks_for(layout, sorted(wanted), keep_predictions), bar))
+
+    _warn_failures(list(results.values()))
+    return Assessment(build_payload(
+        name=name or "nested cross-validation", dataset=dataset, space=resolved, layout=layout, y=y,
+        metrics=metrics, classes=classes, classifier=classifier, results=results, choices=choices,
+        refit_all=refit_all, n_features=_n_features(X), grouped=groups is not None))
+
+
+class _Runner:
+    def __init__(self, space: Space, X, y, scorer, metrics, classes):
+        self.space, self.X, self.y = space, X, y
+        self.scorer, self.metrics, self.classes = scorer, metrics, classes
+
+    def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
+        candidates, estimators = self.space.candidates, self.space.estimators
+        jobs = (delayed(run_fit)(task, estimators[candidates[task.config].family],
+                                 candidates[task.config].params, self.X, self.y, self.scorer, self.metrics,
+                                 self.classes) for task in tasks)
+        results = {}
+        for result in pool(jobs):
+            results[result.key] = result
+            bar.update(1)
+        return results
+
+
+def _inner_tasks(layout: Layout, n_configs: int) -> Iterable[FitTask]:
+    for s, split in enumerate(layout.splits):
+        for i, (train, test) in enumerate(split.inner):
+            for c in range(n_configs):
+                yield FitTask(("inner", s, i, c), c, train, test)
+
+
+def _outer_tasks(layout: Layout, configs, predict: bool) -> list[FitTask]:
+    return _outer_tasks_for(layout, [(s, c) for s in range(len(layout.splits)) for c in configs], predict)
+
+
+def _outer_tasks_for(layout: Layout, pairs, predict: bool) -> list[FitTask]:
+    return [FitTask(("outer", s, c), c, layout.splits[s].train, layout.splits[s].test, predict)
+            for s, c in pairs]
+
+
+def _select(layout: Layout, space: Space, results: dict, metric: str) -> list[tuple[list, int]]:
+    families = [space.positions_of(family) for family in space.estimators]
+    n_configs, choices = len(space.candidates), []
+    for s, split in enumerate(layout.splits):
+        inner = np.array([[results[("inner", s, i, c)].scores[metric] for i in range(layout.n_inner_folds)]
+                          for c in range(n_configs)])
+        winners, overall = select_in_fold(inner, families)
+        if overall is None:
+            errors = {results[("inner", s, i, c)].error for i in range(layout.n_inner_folds)
+                      for c in range(n_configs)} - {None}
+            raise RuntimeError(f"every configuration failed in repeat {split.repeat}, outer fold "
+                               f"{split.outer_fold}; first errors: {sorted(errors)[:3]}")
+        choices.append((winners, overall))
+    return choices
+
+
+def resolve_metrics(scoring, classifier: bool) -> list[str]:
+    if scoring is None:
+        return ["accuracy" if classifier else "r2"]
+    metrics = [scoring] if isinstance(scoring, str) else list(scoring) if isinstance(scoring, list | tuple) \
+        else None
+    if not metrics or not all(isinstance(metric, str) for metric in metrics):
+        raise TypeError(f"scoring must be a scorer name or a list of them, got {scoring!r}")
+    unknown = sorted(set(metrics) - set(get_scorer_names()))
+    if unknown:
+        raise ValueError(f"unknown scorer names {unknown}; see sklearn.metrics.get_scorer_names()")
+    if len(set(metrics)) != len(metrics):
+        raise ValueError(f"scoring names a metric twice: {metrics}")
+    return metrics
+
+
+def _task_of(space: Space) -> bool:
+    kinds = {family: is_classifier(estimator) for family, estimator in space.estimators.items()}
+    if len(set(kinds.values())) > 1:
+        raise ValueError(f"families mix classifiers and regressors: {kinds}")
+    return next(iter(kinds.values()))
+
+
+def _check_lengths(X, y, groups) -> None:
+    n = len(y)
+    if len(X) != n or (groups is not None and len(groups) != n):
+        raise ValueError(f"X, y and groups must have the same number of rows, got {len(X)}, {n} and "
+                         f"{None if groups is None else len(groups)}")
+
+
+def _n_features(X) -> int | None:
+    shape = getattr(X, "shape", None)
+    return int(shape[1]) if shape is not None and len(shape) == 2 else None
+
+
+def _warn_failures(records: list[FitResult]) -> None:
+    failed = [record for record in records if record.error]
+    if failed:
+        warnings.warn(f"{len(failed)} of {len(records)} fits failed and were recorded with NaN scores; "
+                      f"first: {failed[0].error}", RuntimeWarning, stacklevel=3)

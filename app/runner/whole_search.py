@@ -1,0 +1,112 @@
+"""Nested cross-validation around a search object foldwise cannot expand (successive halving, ...).
+
+The search is fitted whole on each outer training set, one task per outer fold in the one pool, and
+its ``cv_results_`` are recorded as inner scores; its own ``best_index_`` picks the fold winner, which
+is the only configuration refit and scored on the outer test set.
+"""
+
+from __future__ import annotations
+
+import time
+import traceback
+
+import numpy as np
+from joblib import Parallel, delayed
+from sklearn.base import clone, is_classifier
+from sklearn.metrics import check_scoring
+from sklearn.utils import _safe_indexing
+from tqdm.auto import tqdm
+
+from foldwise.assessment import Assessment
+from foldwise.payload import config_id
+from foldwise.runner.building import build_payload
+from foldwise.runner.fitting import FitResult, outer_predictions
+from foldwise.runner.space import Candidate, Space
+from foldwise.runner.splits import lay_out
+
+
+def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progress, name, dataset,
+                        keep_predictions) -> Assessment:
+    from foldwise.runner.nested import resolve_metrics
+
+    classifier = is_classifier(search.estimator)
+    own = search.scoring
+    metrics = resolve_metrics(scoring if scoring is not None else own, classifier)
+    layout = lay_out(X, y, groups, outer=outer, inner=search.cv, classifier=classifier)
+    classes = np.unique(np.asarray(y)).tolist() if classifier else None
+    scorer = check_scoring(search.estimator, scoring=metrics)
+    single = own is None or isinstance(own, str)
+    with tqdm(total=len(layout.splits), unit="search", desc=name or "nested cv", disable=not progress) as bar:
+        folds = []
+        for fold in Parallel(n_jobs=n_jobs, return_as="generator")(
+                delayed(_fit_search)(search, X, y, groups, split.train, split.test, scorer, metrics, classes,
+                                     keep_predictions, single) for split in layout.splits):
+            folds.append(fold)
+            bar.update(1)
+
+    family = type(search.estimator).__name__
+    candidates: dict[str, Candidate] = {}
+    for fold in folds:
+        for params in fold["params"]:
+            ident = config_id(family, params)
+            candidates.setdefault(ident, Candidate(family, dict(params), ident))
+    position = {ident: i for i, ident in enumerate(candidates)}
+    results, choices = {}, []
+    for s, fold in enumerate(folds):
+        ids = [config_id(family, params) for params in fold["params"]]
+        for c, ident in enumerate(ids):  # a config evaluated again later (more resources) keeps the last
+            for i in range(layout.n_inner_folds):
+                scores = {metric: fold["inner"][metric][c][i] for metric in metrics}
+                results[("inner", s, i, position[ident])] = FitResult(
+                    ("inner", s, i, position[ident]), scores, fold["fit_time"][c], fold["score_time"][c], 0.0)
+        winner = position[ids[fold["best"]]]
+        results[("outer", s, winner)] = FitResult(("outer", s, winner), *fold["outer"])
+        choices.append(([winner], winner))
+    space = Space({family: search.estimator}, list(candidates.values()))
+    return Assessment(build_payload(
+        name=name or "nested cross-validation", dataset=dataset, space=space, layout=layout, y=y,
+        metrics=metrics, classes=classes, classifier=classifier, results=_complete(results, layout, space,
+                                                                                   metrics),
+        choices=choices, refit_all=False, n_features=getattr(X, "shape", (0, None))[1],
+        grouped=groups is not None))
+
+
+def _complete(results, layout, space, metrics) -> dict:
+    """Configurations a fold's search never tried get NaN inner scores there, so every fold has them all."""
+    for s in range(len(layout.splits)):
+        for i in range(layout.n_inner_folds):
+            for c in range(len(space.candidates)):
+                key = ("inner", s, i, c)
+                results.setdefault(key, FitResult(key, dict.fromkeys(metrics, np.nan), 0.0, 0.0, 0.0,
+                                                  error="not evaluated by the search in this outer fold"))
+    return results
+
+
+def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, keep_predictions, single):
+    started_cpu = time.process_time()
+    fitted = clone(search)
+    fit_args = {} if groups is None else {"groups": _safe_indexing(groups, train)}
+    fitted.fit(_safe_indexing(X, train), _safe_indexing(y, train), **fit_args)
+    cv = fitted.cv_results_
+    n_splits = fitted.n_splits_
+
+    def column(metric, i):
+        key = f"split{i}_test_score" if single else f"split{i}_test_{metric}"
+        return np.asarray(cv[key], dtype=float) if key in cv else np.full(len(cv["params"]), np.nan)
+
+    inner = {metric: np.column_stack([column(metric, i) for i in range(n_splits)]).tolist() for metric in metrics}
+    X_test, y_test = _safe_indexing(X, test), _safe_indexing(y, test)
+    model, error = fitted.best_estimator_, None
+    started = time.perf_counter()
+    try:
+        scores = {metric: float(value) for metric, value in scorer(model, X_test, y_test).items()}
+        prediction = outer_predictions(model, X_test, classes) if keep_predictions else None
+    except Exception as exc:  # recorded like any failed fit
+        scores, prediction = dict.fromkeys(metrics, np.nan), None
+        error = "".join(traceback.format_exception_only(exc)).strip()
+    score_time = time.perf_counter() - started
+    return {"params": cv["params"], "inner": inner, "best": int(fitted.best_index_),
+            "fit_time": np.asarray(cv["mean_fit_time"], dtype=float).tolist(),
+            "score_time": np.asarray(cv["mean_score_time"], dtype=float).tolist(),
+            "outer": (scores, float(fitted.refit_time_), score_time, time.process_time() - started_cpu,
+                      prediction, error)}
