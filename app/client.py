@@ -1,0 +1,125 @@
+"""Getting an assessment into a store: ``push`` over HTTP (retry, then spool), ``save`` directly, ``resend``.
+
+Nothing is lost: a payload the server cannot take right now is written to a spool folder, and
+``resend`` (or ``foldwise resend``) delivers it later.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import time
+import warnings
+from pathlib import Path
+
+import httpx
+
+from foldwise.payload import AssessmentPayload
+from foldwise.settings import spool_dir_from
+
+CREATED, STORED, SPOOLED = "created", "already stored", "spooled"
+
+
+class PushRejected(Exception):
+    """The server refused the payload itself (4xx): sending it again would not help."""
+
+    def __init__(self, status: int, detail):
+        super().__init__(f"the server refused the assessment ({status}): {detail}")
+        self.status, self.detail = status, detail
+
+
+def save(payload: AssessmentPayload, target: str) -> bool:
+    """Write into the store at ``target`` (a path or SQLAlchemy URL); True when newly stored."""
+    from foldwise.store import db_url_from, insert_assessment, make_engine
+
+    engine = make_engine(db_url_from(target))
+    try:
+        return insert_assessment(engine, payload)
+    finally:
+        engine.dispose()
+
+
+def push(payload: AssessmentPayload, url: str, *, token: str | None = None, retries: int = 3,
+         backoff: float = 0.5, timeout: float = 60.0, spool_dir: str | Path | None = None) -> str:
+    """POST the assessment to a foldwise server at ``url``.
+
+    Returns ``"created"``, ``"already stored"`` or, when the server could not be reached after
+    ``retries`` attempts, ``"spooled"`` (with a warning naming the spool file).
+    """
+    body = payload.model_dump_json()
+    try:
+        return _send(body, url, token=token, retries=retries, backoff=backoff, timeout=timeout)
+    except httpx.TransportError as error:
+        path = _spool(body, url, payload.uuid, spool_dir)
+        warnings.warn(f"could not reach {url} ({error}); kept in {path}, deliver it with `foldwise resend`",
+                      RuntimeWarning, stacklevel=2)
+        return SPOOLED
+
+
+def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token: str | None = None,
+           retries: int = 3, backoff: float = 0.5) -> list[tuple[str, str]]:
+    """Deliver every spooled assessment (to ``url``, or to where each was first sent).
+
+    Returns (file name, outcome) pairs; a delivered file is removed, an undeliverable one stays.
+    """
+    outcomes = []
+    for path in sorted(_spool_dir(spool_dir).glob("*.json")):
+        entry = json.loads(path.read_text(encoding="utf-8"))
+        try:
+            outcome = _send(json.dumps(entry["payload"]), url or entry["url"], token=token, retries=retries,
+                            backoff=backoff, timeout=60.0)
+        except httpx.TransportError as error:
+            outcomes.append((path.name, f"still unreachable: {error}"))
+            continue
+        except PushRejected as error:
+            outcomes.append((path.name, str(error)))
+            continue
+        path.unlink()
+        outcomes.append((path.name, outcome))
+    return outcomes
+
+
+def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
+    headers = {"content-type": "application/json"}
+    token = token or os.environ.get("FOLDWISE_TOKEN")
+    if token:
+        headers["authorization"] = f"Bearer {token}"
+    endpoint = url.rstrip("/") + "/api/assessments"
+    for attempt in range(retries):
+        try:
+            response = httpx.post(endpoint, content=body, headers=headers, timeout=timeout)
+        except httpx.TransportError:
+            if attempt == retries - 1:
+                raise
+            time.sleep(backoff * 2 ** attempt)
+            continue
+        if response.status_code in (200, 201):
+            return CREATED if response.status_code == 201 else STORED
+        if response.status_code >= 500 and attempt < retries - 1:
+            time.sleep(backoff * 2 ** attempt)
+            continue
+        if response.status_code >= 500:
+            raise httpx.TransportError(f"server error {response.status_code}")
+        raise PushRejected(response.status_code, _detail(response))
+    raise ValueError(f"retries must be at least 1, got {retries}")
+
+
+def _detail(response: httpx.Response):
+    try:
+        return response.json().get("detail", response.text)
+    except ValueError:
+        return response.text
+
+
+def _spool_dir(spool_dir) -> Path:
+    return Path(spool_dir) if spool_dir is not None else spool_dir_from(os.environ)
+
+
+def _spool(body: str, url: str, uuid, spool_dir) -> Path:
+    folder = _spool_dir(spool_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / f"{uuid}.json"
+    partial = path.with_suffix(".part")
+    partial.write_text(json.dumps({"url": url, "payload": json.loads(body)}), encoding="utf-8")
+    os.replace(partial, path)  # a reader never sees half a file
+    return path

@@ -1,0 +1,90 @@
+"""The JSON API. Every read endpoint is filled by the same functions as the page that shows it."""
+
+from __future__ import annotations
+
+from typing import Literal
+
+from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi.responses import JSONResponse, Response
+from sqlalchemy import text
+
+from foldwise import frames
+from foldwise.payload import AssessmentPayload
+from foldwise.store import get_assessment, inner_scores_for, insert_assessment, outer_scores_for
+from foldwise.web.pages.assessment_detail import assessment_context
+from foldwise.web.pages.index import index_context
+from foldwise.web.serialise import records, to_csv
+
+router = APIRouter(prefix="/api")
+
+
+@router.post("/assessments", status_code=201, responses={200: {"description": "already stored"}})
+def push_assessment(request: Request, payload: AssessmentPayload):
+    """Store one assessment, in one transaction; pushing the same uuid again changes nothing (200)."""
+    created = insert_assessment(request.app.state.engine, payload)
+    body = {"uuid": str(payload.uuid), "created": created,
+            "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}
+    return JSONResponse(body, status_code=201 if created else 200)
+
+
+@router.get("/assessments")
+def list_all(request: Request, dataset: str | None = None, name: str | None = None):
+    return index_context(request.app.state.engine, dataset=dataset, name=name).assessments
+
+
+@router.get("/assessments/{uuid}")
+def one(request: Request, uuid: str, metric: str | None = None):
+    page = assessment_context(request.app.state.engine, uuid, metric=metric)
+    record = page.record
+    return {
+        "uuid": record.uuid, "name": record.name, "dataset": record.dataset,
+        "created_at": record.created_at.isoformat(), "design": record.design.model_dump(),
+        "design_text": page.design, "families": [family.model_dump() for family in record.families],
+        "configurations": [config.model_dump() for config in record.configurations],
+        "fingerprint": record.fingerprint, "versions": record.versions, "seeds": record.seeds,
+        "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": page.estimate,
+        "family_summary": page.summary, "n_failures": page.n_failures, "failures": page.failures,
+    }
+
+
+@router.get("/assessments/{uuid}/scores")
+def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "outer",
+           format: Literal["json", "csv"] = Query("json")):
+    engine = request.app.state.engine
+    _require(engine, uuid)
+    frame = inner_scores_for(engine, uuid) if level == "inner" else outer_scores_for(engine, uuid)
+    if format == "csv":
+        return Response(to_csv(frame), media_type="text/csv", headers={
+            "content-disposition": f'attachment; filename="{uuid}-{level}-scores.csv"'})
+    return records(frame)
+
+
+@router.get("/assessments/{uuid}/winners")
+def winners(request: Request, uuid: str, metric: str | None = None,
+            level: Literal["overall", "family"] = "overall"):
+    """Fold winners with inner mean ± sd, outer score and optimism (inner mean − outer score)."""
+    engine = request.app.state.engine
+    record = _require(engine, uuid)
+    metric = metric or record.design.selection_metric
+    if metric not in record.design.metrics:
+        raise HTTPException(422, f"metric {metric!r} was not recorded; choose one of {record.design.metrics}")
+    flag = "overall_winner" if level == "overall" else "family_winner"
+    return records(frames.winners_frame(inner_scores_for(engine, uuid), outer_scores_for(engine, uuid), metric,
+                                        flag=flag))
+
+
+health = APIRouter()
+
+
+@health.get("/healthz")
+def healthz(request: Request):
+    with request.app.state.engine.connect() as connection:
+        connection.execute(text("SELECT 1"))
+    return {"status": "ok"}
+
+
+def _require(engine, uuid: str):
+    record = get_assessment(engine, uuid)
+    if record is None:
+        raise HTTPException(404, f"no assessment {uuid!r} in this store")
+    return record

@@ -1,0 +1,70 @@
+"""The app factory: engine, templates and routes, all kept on ``app.state``."""
+
+from __future__ import annotations
+
+from contextlib import asynccontextmanager
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import FileResponse, JSONResponse
+from fastapi.staticfiles import StaticFiles
+from fastapi.templating import Jinja2Templates
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+import foldwise
+from foldwise.settings import Settings
+from foldwise.store import make_engine
+from foldwise.web import api
+from foldwise.web.formatting import FILTERS
+from foldwise.web.pages import assessment_detail, index
+from foldwise.web.resources import plotly_js, static_dir, templates_dir
+
+CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
+           "safety needs external validation and must follow local regulation and licensed practice.")
+
+
+def create_app(settings: Settings) -> FastAPI:
+    # The interactive docs would load their scripts from a CDN, so they are off; the schema stays.
+    app = FastAPI(title="foldwise", version=foldwise.__version__, docs_url=None, redoc_url=None,
+                  openapi_url="/api/openapi.json", lifespan=_lifespan)
+    app.state.settings = settings
+    app.state.engine = make_engine(settings.db_url)
+    templates = Jinja2Templates(directory=str(templates_dir()))
+    templates.env.filters.update(FILTERS)
+    templates.env.globals.update(caution=CAUTION, version=foldwise.__version__)
+    app.state.templates = templates
+
+    app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
+    app.include_router(api.router)
+    app.include_router(api.health)
+    app.include_router(index.router)
+    app.include_router(assessment_detail.router)
+
+    @app.get("/vendor/plotly.min.js", include_in_schema=False, name="plotly_js")
+    def plotly():
+        return FileResponse(plotly_js(), media_type="text/javascript",
+                            headers={"cache-control": "public, max-age=86400"})
+
+    @app.exception_handler(RequestValidationError)
+    async def invalid(request: Request, error: RequestValidationError):
+        # Name where the problem is and what is wrong, without echoing a large body back.
+        detail = [{"loc": list(e.get("loc", ())), "msg": e.get("msg", ""), "type": e.get("type", "")}
+                  for e in error.errors()]
+        return JSONResponse({"detail": detail}, status_code=422)
+
+    @app.exception_handler(StarletteHTTPException)
+    async def http_error(request: Request, error: StarletteHTTPException):
+        if request.url.path.startswith("/api") or "text/html" not in request.headers.get("accept", ""):
+            return JSONResponse({"detail": error.detail}, status_code=error.status_code,
+                                headers=getattr(error, "headers", None))
+        return templates.TemplateResponse(request, "error.html", {"status": error.status_code,
+                                                                  "message": error.detail},
+                                          status_code=error.status_code)
+
+    return app
+
+
+@asynccontextmanager
+async def _lifespan(app: FastAPI):
+    yield
+    app.state.engine.dispose()

@@ -1,0 +1,33 @@
+"""Jinja filters: how numbers, designs and parameters read on a page."""
+
+from __future__ import annotations
+
+import math
+
+
+def score(value, digits: int = 3) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "–"
+    return f"{value:.{digits}f}"
+
+
+def design_text(n_outer: int, n_inner: int, n_repeats: int) -> str:
+    text = f"{n_outer} outer × {n_inner} inner"
+    return text + (f", {n_repeats} repeats" if n_repeats > 1 else "")
+
+
+def params_text(params: dict) -> str:
+    if not params:
+        return "defaults"
+    return ", ".join(f"{key.rsplit('__', 1)[-1]}={value}" for key, value in params.items())
+
+
+def seconds(value: float) -> str:
+    if value < 60:
+        return f"{value:.1f} s"
+    if value < 3600:
+        return f"{value / 60:.1f} min"
+    return f"{value / 3600:.1f} h"
+
+
+FILTERS = {"score": score, "params_text": params_text, "seconds": seconds}

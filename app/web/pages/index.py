@@ -1,0 +1,35 @@
+"""The index: every stored assessment, newest first, filtered by dataset or name."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from fastapi import APIRouter, Request
+
+from foldwise.store import list_assessments
+from foldwise.web.formatting import design_text
+from foldwise.web.serialise import records
+
+router = APIRouter()
+
+
+@dataclass(frozen=True)
+class IndexContext:
+    assessments: list[dict]
+    dataset: str
+    name: str
+    total: int
+
+
+def index_context(engine, *, dataset: str | None, name: str | None) -> IndexContext:
+    rows = records(list_assessments(engine, dataset=dataset or None, name=name or None))
+    for row in rows:
+        row["design"] = design_text(row["n_outer_folds"], row["n_inner_folds"], row["n_repeats"])
+    total = len(rows) if not (dataset or name) else len(list_assessments(engine))
+    return IndexContext(rows, dataset or "", name or "", total)
+
+
+@router.get("/", name="index")
+def index(request: Request, dataset: str | None = None, name: str | None = None):
+    context = index_context(request.app.state.engine, dataset=dataset, name=name)
+    return request.app.state.templates.TemplateResponse(request, "index.html", {"page": context})

@@ -1,0 +1,50 @@
+"""DataFrames to JSON records and CSV, the same for every endpoint."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+
+_FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def records(frame: pd.DataFrame) -> list[dict]:
+    """Rows as dicts of plain Python values, NaN as None, timestamps as ISO 8601."""
+    return [{column: plain(value) for column, value in row.items()} for row in frame.to_dict(orient="records")]
+
+
+def plain(value):
+    if isinstance(value, float | np.floating):
+        value = float(value)
+        return None if math.isnan(value) or math.isinf(value) else value
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, pd.Timestamp):
+        return value.isoformat()
+    if value is pd.NaT or value is None:
+        return None
+    if hasattr(value, "isoformat"):
+        return value.isoformat()
+    return value
+
+
+def to_csv(frame: pd.DataFrame) -> str:
+    """CSV with params as JSON, and text cells that a spreadsheet would run as a formula neutralised."""
+    frame = frame.copy()
+    for column in frame.columns:
+        if frame[column].dtype == object:
+            frame[column] = [_cell(value) for value in frame[column]]
+    return frame.to_csv(index=False)
+
+
+def _cell(value):
+    if isinstance(value, dict | list):
+        value = json.dumps(value, sort_keys=True)
+    if isinstance(value, str) and value.startswith(_FORMULA_STARTS):
+        return "'" + value
+    return value

@@ -1,0 +1,97 @@
+"""Shared fixtures: a small real assessment, an app around a fresh SQLite file, a real uvicorn server."""
+
+from __future__ import annotations
+
+import os
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import httpx
+import pytest
+from fastapi.testclient import TestClient
+from sklearn.datasets import load_breast_cancer
+from sklearn.linear_model import LogisticRegression
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+from sklearn.tree import DecisionTreeClassifier
+
+import foldwise
+from foldwise.settings import Settings
+from foldwise.web.app import create_app
+
+
+@pytest.fixture(scope="session")
+def small_assessment():
+    """A real nested CV on part of the bundled breast-cancer data: 2 families, 5 configurations."""
+    X, y = load_breast_cancer(return_X_y=True)
+    space = {
+        "logistic": (make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000)),
+                     {"logisticregression__C": [0.05, 1.0]}),
+        "tree": (DecisionTreeClassifier(random_state=0), {"max_depth": [1, 2, 3]}),
+    }
+    return foldwise.nested_cv(space, X[::2], y[::2], outer=3, inner=3, scoring=["roc_auc", "accuracy"],
+                              n_jobs=1, progress=False, name="breast cancer, two families",
+                              dataset="breast-cancer (scikit-learn bundled)")
+
+
+@pytest.fixture
+def db_path(tmp_path) -> Path:
+    return tmp_path / "store.db"
+
+
+@pytest.fixture
+def client(db_path):
+    app = create_app(Settings(db_url=f"sqlite:///{db_path}"))
+    with TestClient(app) as test_client:
+        yield test_client
+
+
+def free_port() -> int:
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return sock.getsockname()[1]
+
+
+class LiveServer:
+    """`foldwise serve` in its own process on loopback, as a person would start it."""
+
+    def __init__(self, db_path: Path, log_path: Path):
+        self.port = free_port()
+        self.url = f"http://127.0.0.1:{self.port}"
+        self.db_path = db_path
+        self._log = open(log_path, "w")
+        self.process = subprocess.Popen(
+            [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(db_path), "--port", str(self.port)],
+            stdout=self._log, stderr=subprocess.STDOUT, env={**os.environ, "PYTHONWARNINGS": "ignore"})
+        self._wait()
+
+    def _wait(self, timeout: float = 30.0) -> None:
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            if self.process.poll() is not None:
+                raise RuntimeError(f"the server exited with {self.process.returncode}")
+            try:
+                if httpx.get(self.url + "/healthz", timeout=1.0).status_code == 200:
+                    return
+            except httpx.TransportError:
+                time.sleep(0.1)
+        raise RuntimeError(f"the server did not answer on {self.url} within {timeout} s")
+
+    def stop(self) -> None:
+        self.process.terminate()
+        try:
+            self.process.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            self.process.kill()
+        self._log.close()
+
+
+@pytest.fixture(scope="session")
+def live_server(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("live")
+    server = LiveServer(folder / "live.db", folder / "server.log")
+    yield server
+    server.stop()

@@ -1,0 +1,58 @@
+"""save, push, spool and resend against a real store and a real uvicorn process on loopback."""
+
+from __future__ import annotations
+
+from uuid import uuid4
+
+import httpx
+import pytest
+
+from foldwise.client import CREATED, SPOOLED, STORED, PushRejected, push, resend, save
+from foldwise.store import load_payload, make_engine
+
+from .conftest import free_port
+
+pytestmark = pytest.mark.server
+
+
+def test_save_reads_back_identical(tmp_path, small_assessment):
+    target = tmp_path / "saved.db"
+    assert small_assessment.save(str(target)) is True
+    assert small_assessment.save(str(target)) is False  # same uuid: stored once
+    engine = make_engine(f"sqlite:///{target}")
+    assert load_payload(engine, small_assessment.uuid) == small_assessment.payload
+    engine.dispose()
+
+
+def test_push_to_a_real_server_reads_back_identical(live_server, small_assessment):
+    assert small_assessment.push(live_server.url) in (CREATED, STORED)
+    assert small_assessment.push(live_server.url) == STORED
+    body = httpx.get(f"{live_server.url}/api/assessments/{small_assessment.uuid}").json()
+    assert body["name"] == small_assessment.name
+    engine = make_engine(f"sqlite:///{live_server.db_path}")
+    assert load_payload(engine, small_assessment.uuid) == small_assessment.payload
+    engine.dispose()
+
+
+def test_unreachable_server_spools_and_resend_delivers(tmp_path, live_server, small_assessment):
+    payload = small_assessment.payload.model_copy(update={"name": "spooled then resent", "uuid": uuid4()})
+    dead = f"http://127.0.0.1:{free_port()}"  # nothing listens there
+    spool = tmp_path / "spool"
+    with pytest.warns(RuntimeWarning, match="foldwise resend"):
+        assert push(payload, dead, spool_dir=spool, retries=2, backoff=0.01) == SPOOLED
+    assert len(list(spool.glob("*.json"))) == 1
+    still = resend(spool_dir=spool, retries=1)
+    assert "still unreachable" in still[0][1]
+    assert len(list(spool.glob("*.json"))) == 1  # nothing lost
+    assert resend(spool_dir=spool, url=live_server.url) == [(f"{payload.uuid}.json", CREATED)]
+    assert list(spool.glob("*.json")) == []
+    engine = make_engine(f"sqlite:///{live_server.db_path}")
+    assert load_payload(engine, str(payload.uuid)) == payload
+    engine.dispose()
+
+
+def test_a_refused_payload_raises_and_is_not_spooled(tmp_path, live_server, small_assessment):
+    bad = small_assessment.payload.model_copy(update={"name": "", "uuid": uuid4()})  # copies skip validation
+    with pytest.raises(PushRejected, match="name"):
+        push(bad, live_server.url, spool_dir=tmp_path / "spool")
+    assert not (tmp_path / "spool").exists()
