@@ -89,6 +89,11 @@ class LiveServer:
         self._log.close()
 
 
+@pytest.fixture
+def unused_port() -> int:
+    return free_port()
+
+
 @pytest.fixture(scope="session")
 def live_server(tmp_path_factory):
     folder = tmp_path_factory.mktemp("live")

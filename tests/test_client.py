@@ -7,10 +7,8 @@ from uuid import uuid4
 import httpx
 import pytest
 
-from foldwise.client import CREATED, SPOOLED, STORED, PushRejected, push, resend, save
+from foldwise.client import CREATED, SPOOLED, STORED, PushRejected, push, resend
 from foldwise.store import load_payload, make_engine
-
-from .conftest import free_port
 
 pytestmark = pytest.mark.server
 
@@ -34,9 +32,9 @@ def test_push_to_a_real_server_reads_back_identical(live_server, small_assessmen
     engine.dispose()
 
 
-def test_unreachable_server_spools_and_resend_delivers(tmp_path, live_server, small_assessment):
+def test_unreachable_server_spools_and_resend_delivers(tmp_path, live_server, small_assessment, unused_port):
     payload = small_assessment.payload.model_copy(update={"name": "spooled then resent", "uuid": uuid4()})
-    dead = f"http://127.0.0.1:{free_port()}"  # nothing listens there
+    dead = f"http://127.0.0.1:{unused_port}"  # nothing listens there
     spool = tmp_path / "spool"
     with pytest.warns(RuntimeWarning, match="foldwise resend"):
         assert push(payload, dead, spool_dir=spool, retries=2, backoff=0.01) == SPOOLED

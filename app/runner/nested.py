@@ -6,11 +6,12 @@ import warnings
 from collections.abc import Iterable
 
 import numpy as np
-from joblib import Parallel, delayed
 from sklearn.base import is_classifier
 from sklearn.metrics import check_scoring, get_scorer_names
 from sklearn.model_selection import GridSearchCV, RandomizedSearchCV
 from sklearn.model_selection._search import BaseSearchCV
+from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
+from sklearn.utils.validation import _num_samples
 from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
@@ -31,7 +32,8 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     space : dict or search object
         ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them, or a
         ``GridSearchCV`` / ``RandomizedSearchCV`` (expanded into its candidates and run in the one
-        pool), or any other ``BaseSearchCV`` (fitted whole on each outer training set).
+        pool), or any other ``BaseSearchCV`` or one with a callable ``refit`` (fitted whole on each
+        outer training set).
     outer, inner : int or splitter
         Resolved with ``check_cv``: stratified for classifiers. A search object's own ``cv`` is its
         inner splitter.
@@ -47,17 +49,18 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     keep_predictions : bool
         Keep each outer fit's test predictions (float64).
     """
-    if isinstance(space, BaseSearchCV) and not isinstance(space, GridSearchCV | RandomizedSearchCV):
+    _check_lengths(X, y, groups)
+    expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
+    if isinstance(space, BaseSearchCV) and not expandable:
         return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
                                    progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
     if isinstance(space, BaseSearchCV):
         inner = space.cv if space.cv is not None else inner
-        scoring = scoring if scoring is not None else space.scoring
+        scoring = scoring if scoring is not None else _refit_first(space.scoring, space.refit)
     resolved = space_from(space)
     classifier = _task_of(resolved)
     metrics = resolve_metrics(scoring, classifier)
-    _check_lengths(X, y, groups)
     layout = lay_out(X, y, groups, outer=outer, inner=inner, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
     scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
@@ -149,6 +152,13 @@ def resolve_metrics(scoring, classifier: bool) -> list[str]:
     return metrics
 
 
+def _refit_first(scoring, refit):
+    """A search scoring several metrics selects by the one its ``refit`` names: put that one first."""
+    if isinstance(scoring, list | tuple) and isinstance(refit, str) and refit in scoring:
+        return [refit, *(metric for metric in scoring if metric != refit)]
+    return scoring
+
+
 def _task_of(space: Space) -> bool:
     kinds = {family: is_classifier(estimator) for family, estimator in space.estimators.items()}
     if len(set(kinds.values())) > 1:
@@ -157,10 +167,10 @@ def _task_of(space: Space) -> bool:
 
 
 def _check_lengths(X, y, groups) -> None:
-    n = len(y)
-    if len(X) != n or (groups is not None and len(groups) != n):
-        raise ValueError(f"X, y and groups must have the same number of rows, got {len(X)}, {n} and "
-                         f"{None if groups is None else len(groups)}")
+    n_X, n = _num_samples(X), _num_samples(y)  # len() refuses sparse matrices
+    n_groups = None if groups is None else _num_samples(groups)
+    if n_X != n or n_groups not in (None, n):
+        raise ValueError(f"X, y and groups must have the same number of rows, got {n_X}, {n} and {n_groups}")
 
 
 def _n_features(X) -> int | None:

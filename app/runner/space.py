@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import copy
 from dataclasses import dataclass
 from typing import Any
 
@@ -56,8 +57,10 @@ def _from_search(search: GridSearchCV | RandomizedSearchCV) -> Space:
         points = ParameterGrid(search.param_grid)
     else:
         # RandomizedSearchCV samples with its random_state; an int draws the same candidates in
-        # every outer fold, as refitting the search per fold would.
-        points = ParameterSampler(search.param_distributions, search.n_iter, random_state=search.random_state)
+        # every outer fold, as refitting the search per fold would. A RandomState is copied, as clone
+        # copies it for each fold's search, so the user's generator is left as it was.
+        points = ParameterSampler(search.param_distributions, search.n_iter,
+                                  random_state=copy.deepcopy(search.random_state))
     return Space({family: search.estimator}, _candidates(family, points))
 
 

@@ -2,7 +2,8 @@
 
 The search is fitted whole on each outer training set, one task per outer fold in the one pool, and
 its ``cv_results_`` are recorded as inner scores; its own ``best_index_`` picks the fold winner, which
-is the only configuration refit and scored on the outer test set.
+is the only configuration refit and scored on the outer test set. Inner scores exist only for the
+metrics the search itself scored; the others are NaN there.
 """
 
 from __future__ import annotations
@@ -11,10 +12,10 @@ import time
 import traceback
 
 import numpy as np
-from joblib import Parallel, delayed
 from sklearn.base import clone, is_classifier
 from sklearn.metrics import check_scoring
 from sklearn.utils import _safe_indexing
+from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
@@ -27,20 +28,26 @@ from foldwise.runner.splits import lay_out
 
 def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progress, name, dataset,
                         keep_predictions) -> Assessment:
-    from foldwise.runner.nested import resolve_metrics
+    from foldwise.runner.nested import _refit_first, resolve_metrics
 
     classifier = is_classifier(search.estimator)
     own = search.scoring
-    metrics = resolve_metrics(scoring if scoring is not None else own, classifier)
+    metrics = resolve_metrics(scoring if scoring is not None else _refit_first(own, search.refit), classifier)
+    single = own is None or isinstance(own, str)
+    # A one-metric search's cv_results_ call its scores "score"; name them for what they measure.
+    searched = (own or resolve_metrics(None, classifier)[0]) if single else None
+    selects = searched if single else search.refit if isinstance(search.refit, str) else None
+    if selects is not None and selects != metrics[0]:
+        raise ValueError(f"the search selects by {selects!r} but scoring names {metrics[0]!r} first; give the "
+                         f"search scoring={metrics[0]!r}, or put {selects!r} first in scoring")
     layout = lay_out(X, y, groups, outer=outer, inner=search.cv, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
     scorer = check_scoring(search.estimator, scoring=metrics)
-    single = own is None or isinstance(own, str)
     with tqdm(total=len(layout.splits), unit="search", desc=name or "nested cv", disable=not progress) as bar:
         folds = []
         for fold in Parallel(n_jobs=n_jobs, return_as="generator")(
                 delayed(_fit_search)(search, X, y, groups, split.train, split.test, scorer, metrics, classes,
-                                     keep_predictions, single) for split in layout.splits):
+                                     keep_predictions, searched) for split in layout.splits):
             folds.append(fold)
             bar.update(1)
 
@@ -82,7 +89,7 @@ def _complete(results, layout, space, metrics) -> dict:
     return results
 
 
-def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, keep_predictions, single):
+def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, keep_predictions, searched):
     started_cpu = time.process_time()
     fitted = clone(search)
     fit_args = {} if groups is None else {"groups": _safe_indexing(groups, train)}
@@ -91,7 +98,10 @@ def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, kee
     n_splits = fitted.n_splits_
 
     def column(metric, i):
-        key = f"split{i}_test_score" if single else f"split{i}_test_{metric}"
+        if searched is None:
+            key = f"split{i}_test_{metric}"
+        else:
+            key = f"split{i}_test_score" if metric == searched else None
         return np.asarray(cv[key], dtype=float) if key in cv else np.full(len(cv["params"]), np.nan)
 
     inner = {metric: np.column_stack([column(metric, i) for i in range(n_splits)]).tolist() for metric in metrics}

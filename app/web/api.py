@@ -4,13 +4,14 @@ from __future__ import annotations
 
 from typing import Literal
 
-from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import JSONResponse, Response
 from sqlalchemy import text
 
 from foldwise import frames
 from foldwise.payload import AssessmentPayload
-from foldwise.store import get_assessment, inner_scores_for, insert_assessment, outer_scores_for
+from foldwise.store import inner_scores_for, insert_assessment, outer_scores_for
+from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
 from foldwise.web.serialise import records, to_csv
@@ -51,7 +52,7 @@ def one(request: Request, uuid: str, metric: str | None = None):
 def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "outer",
            format: Literal["json", "csv"] = Query("json")):
     engine = request.app.state.engine
-    _require(engine, uuid)
+    record_or_404(engine, uuid)
     frame = inner_scores_for(engine, uuid) if level == "inner" else outer_scores_for(engine, uuid)
     if format == "csv":
         return Response(to_csv(frame), media_type="text/csv", headers={
@@ -64,13 +65,10 @@ def winners(request: Request, uuid: str, metric: str | None = None,
             level: Literal["overall", "family"] = "overall"):
     """Fold winners with inner mean ± sd, outer score and optimism (inner mean − outer score)."""
     engine = request.app.state.engine
-    record = _require(engine, uuid)
-    metric = metric or record.design.selection_metric
-    if metric not in record.design.metrics:
-        raise HTTPException(422, f"metric {metric!r} was not recorded; choose one of {record.design.metrics}")
+    metric = metric_or_422(record_or_404(engine, uuid), metric)
     flag = "overall_winner" if level == "overall" else "family_winner"
-    return records(frames.winners_frame(inner_scores_for(engine, uuid), outer_scores_for(engine, uuid), metric,
-                                        flag=flag))
+    table = frames.winners_frame(inner_scores_for(engine, uuid), outer_scores_for(engine, uuid), metric, flag=flag)
+    return records(table)
 
 
 health = APIRouter()
@@ -81,10 +79,3 @@ def healthz(request: Request):
     with request.app.state.engine.connect() as connection:
         connection.execute(text("SELECT 1"))
     return {"status": "ok"}
-
-
-def _require(engine, uuid: str):
-    record = get_assessment(engine, uuid)
-    if record is None:
-        raise HTTPException(404, f"no assessment {uuid!r} in this store")
-    return record

@@ -13,7 +13,8 @@ _FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 def records(frame: pd.DataFrame) -> list[dict]:
     """Rows as dicts of plain Python values, NaN as None, timestamps as ISO 8601."""
-    return [{column: plain(value) for column, value in row.items()} for row in frame.to_dict(orient="records")]
+    rows = frame.to_dict(orient="records")
+    return [{column: plain(value) for column, value in row.items()} for row in rows]
 
 
 def plain(value):

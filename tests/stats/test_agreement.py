@@ -4,8 +4,9 @@ import math
 
 import numpy as np
 import pytest
-from foldwise.stats.agreement import rank_agreement
 from scipy import stats
+
+from foldwise.stats.agreement import rank_agreement
 
 
 @pytest.mark.parametrize(("seed", "n"), [(0, 3), (1, 8), (2, 40)])

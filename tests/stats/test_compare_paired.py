@@ -6,8 +6,9 @@ import re
 import baycomp
 import numpy as np
 import pytest
-from foldwise.stats.paired import compare_paired
 from scipy import stats
+
+from foldwise.stats.paired import compare_paired
 
 KEYS = {"n", "n_missing", "mean_diff", "sd_diff", "corrected_t", "corrected_p", "df", "bayes_a", "bayes_rope",
         "bayes_b", "posterior_loc", "posterior_scale", "wilcoxon_stat", "wilcoxon_p", "identical", "verdict"}

@@ -3,6 +3,7 @@
 import doctest
 
 import pytest
+
 from foldwise.stats import agreement, paired, planner, ranking, summaries
 
 

@@ -5,8 +5,9 @@ import math
 import baycomp
 import numpy as np
 import pytest
-from foldwise.stats.paired import bayesian_correlated_ttest, corrected_resampled_ttest, wilcoxon_signed_rank
 from scipy import stats
+
+from foldwise.stats.paired import bayesian_correlated_ttest, corrected_resampled_ttest, wilcoxon_signed_rank
 
 
 def _paired_scores(seed, n, shift=0.01, spread=0.02):

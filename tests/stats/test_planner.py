@@ -3,6 +3,7 @@
 import itertools
 
 import pytest
+
 from foldwise.stats.planner import project_wall_time
 
 

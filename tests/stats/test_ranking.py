@@ -5,8 +5,9 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from foldwise.stats.ranking import nemenyi_q, rank_families
 from scipy import stats
+
+from foldwise.stats.ranking import nemenyi_q, rank_families
 
 # Demšar (2006), Table 5(a): two-tailed Nemenyi q_0.05 for k = 2..10 (from memory, as in the module).
 DEMSAR_Q = [1.960, 2.343, 2.569, 2.728, 2.850, 2.949, 3.031, 3.102, 3.164]

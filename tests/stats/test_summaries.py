@@ -4,8 +4,9 @@ import math
 
 import numpy as np
 import pytest
-from foldwise.stats.summaries import optimism_summary, score_summary
 from scipy import stats
+
+from foldwise.stats.summaries import optimism_summary, score_summary
 
 
 def test_score_summary_matches_numpy_and_scipy_t_interval():

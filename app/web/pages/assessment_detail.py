@@ -4,11 +4,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Request
 
 from foldwise import frames
-from foldwise.store import AssessmentRecord, failures_for, get_assessment, inner_scores_for, outer_scores_for
+from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
 from foldwise.web.formatting import design_text
+from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
 
@@ -39,13 +40,8 @@ class AssessmentContext:
 
 
 def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentContext:
-    record = get_assessment(engine, uuid)
-    if record is None:
-        raise HTTPException(404, f"no assessment {uuid!r} in this store")
-    metrics = record.design.metrics
-    metric = metric or record.design.selection_metric
-    if metric not in metrics:
-        raise HTTPException(422, f"metric {metric!r} was not recorded; choose one of {metrics}")
+    record = record_or_404(engine, uuid)
+    metric, metrics = metric_or_422(record, metric), record.design.metrics
     inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
     overall = frames.winners_frame(inner, outer, metric)
     per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
@@ -63,7 +59,8 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
         metric=metric, metrics=metrics, estimate=estimate,
         summary=records(frames.family_summary(outer, metric)), families=families,
-        colours=family_colours(families), folds=folds, failures=records(failures.head(20)), n_failures=len(failures))
+        colours=family_colours(families), folds=folds, failures=records(failures.head(20)),
+        n_failures=len(failures))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail")
