@@ -49,8 +49,8 @@ def run_demo(target: str, *, n_jobs: int = 2, progress: bool = True) -> list[str
 
 def _fault_space(*, small: bool = False) -> dict:
     logistic = make_pipeline(StandardScaler(), LogisticRegression(max_iter=2000))
-    forest = RandomForestClassifier(n_estimators=100, random_state=0)
-    boosting = HistGradientBoostingClassifier(max_iter=150, random_state=0)
+    forest = RandomForestClassifier(n_estimators=60, random_state=0)
+    boosting = HistGradientBoostingClassifier(max_iter=100, random_state=0)
     if small:
         return {
             "logistic regression": (logistic, {"logisticregression__C": [0.1, 1.0]}),
@@ -60,7 +60,7 @@ def _fault_space(*, small: bool = False) -> dict:
     return {
         "logistic regression": (logistic, {"logisticregression__C": [0.01, 0.1, 1.0, 10.0]}),
         "random forest": (forest, {"min_samples_leaf": [3, 10], "max_features": ["sqrt", 0.6]}),
-        "gradient boosting": (boosting, {"learning_rate": [0.05, 0.1], "max_depth": [3, None]}),
+        "gradient boosting": (boosting, {"learning_rate": [0.05, 0.1], "max_depth": [2, 4]}),
     }
 
 

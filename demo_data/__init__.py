@@ -1,0 +1,1 @@
+"""Invented demo scenarios, regenerated from fixed seeds."""
