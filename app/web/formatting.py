@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import math
 
+from markupsafe import Markup
+
 
 def score(value, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
@@ -30,4 +32,10 @@ def seconds(value: float) -> str:
     return f"{value / 3600:.1f} h"
 
 
-FILTERS = {"score": score, "params_text": params_text, "seconds": seconds}
+def json_script(text: str) -> Markup:
+    """JSON text safe inside <script type="application/json">: no way to close the tag early."""
+    escaped = text.replace("&", "\\u0026").replace("<", "\\u003c").replace(">", "\\u003e")
+    return Markup(escaped.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
+
+
+FILTERS = {"score": score, "params_text": params_text, "seconds": seconds, "json_script": json_script}
