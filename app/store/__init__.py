@@ -1,0 +1,37 @@
+"""The store: assessments kept in any SQLAlchemy database (SQLite by default), read back as frames."""
+
+from foldwise.store.engine import db_url_from, default_db_url, make_engine
+from foldwise.store.lookup import AssessmentNotFound
+from foldwise.store.queries import (
+    AssessmentRecord,
+    failures_for,
+    family_winners_for,
+    get_assessment,
+    inner_scores_for,
+    list_assessments,
+    outer_scores_for,
+    winners_for,
+)
+from foldwise.store.restore import StoredPrediction, load_payload, outer_folds_for, predictions_for
+from foldwise.store.writes import delete_assessment, insert_assessment
+
+__all__ = [
+    "AssessmentNotFound",
+    "AssessmentRecord",
+    "StoredPrediction",
+    "db_url_from",
+    "default_db_url",
+    "delete_assessment",
+    "failures_for",
+    "family_winners_for",
+    "get_assessment",
+    "inner_scores_for",
+    "insert_assessment",
+    "list_assessments",
+    "load_payload",
+    "make_engine",
+    "outer_folds_for",
+    "outer_scores_for",
+    "predictions_for",
+    "winners_for",
+]

@@ -1,0 +1,86 @@
+"""Where the store lives and how to open it: URLs, the engine with its SQLite settings, migrations."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
+from pathlib import Path
+
+from alembic import command
+from alembic.config import Config
+from sqlalchemy import Connection, Engine, create_engine, event
+
+_MIGRATIONS = Path(__file__).parent / "migrations"
+# busy_timeout first, so that switching a fresh file to WAL waits for a concurrent opener instead of failing.
+_SQLITE_PRAGMAS = ("busy_timeout=30000", "journal_mode=WAL", "foreign_keys=ON", "synchronous=NORMAL")
+_WRITE_LOCK = "foldwise_write_lock"
+
+
+def db_url_from(value: str) -> str:
+    """A SQLAlchemy URL for ``value``: a URL (anything with ``://``) as is, a file path as SQLite.
+
+    The parent folder of a path is created, so a fresh location works at once.
+    """
+    if not isinstance(value, str) or not value.strip():
+        raise ValueError(f"a store location must be a file path or a SQLAlchemy URL such as "
+                         f"'sqlite:///runs.db' or 'postgresql://host/db'; received {value!r}")
+    if "://" in value:
+        return value
+    path = Path(value).expanduser().resolve()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    return f"sqlite:///{path}"
+
+
+def default_db_url(environ: Mapping[str, str]) -> str:
+    """``FOLDWISE_DB`` (a path or URL) if set, else ``foldwise/foldwise.db`` in the XDG data folder."""
+    if environ.get("FOLDWISE_DB"):
+        return db_url_from(environ["FOLDWISE_DB"])
+    data_home = environ.get("XDG_DATA_HOME", "")
+    if not Path(data_home).is_absolute():  # the XDG base directory spec ignores relative paths
+        data_home = Path(environ.get("HOME") or Path.home()) / ".local" / "share"
+    return db_url_from(str(Path(data_home) / "foldwise" / "foldwise.db"))
+
+
+def make_engine(url: str) -> Engine:
+    """An engine for ``url`` whose schema is migrated to the newest revision.
+
+    On SQLite every connection gets WAL journaling (readers never wait for the writer), foreign keys
+    (for the cascades), a 30 s busy timeout and ``synchronous=NORMAL``; SQLAlchemy then emits BEGIN
+    itself, so a transaction covers reads and DDL too. Safe to call again on a migrated store.
+    """
+    engine = create_engine(url)
+    if engine.dialect.name == "sqlite":
+        event.listen(engine, "connect", _prepare_sqlite_connection)
+        event.listen(engine, "begin", _begin_sqlite_transaction)
+    with write_transaction(engine) as connection:
+        config = Config()
+        config.set_main_option("script_location", str(_MIGRATIONS).replace("%", "%%"))
+        config.attributes["connection"] = connection
+        command.upgrade(config, "head")
+    return engine
+
+
+@contextmanager
+def write_transaction(engine: Engine) -> Iterator[Connection]:
+    """A connection in a transaction that commits on success and holds the write lock from its start.
+
+    On SQLite the transaction begins IMMEDIATE, so two writers queue (within the busy timeout) instead
+    of one failing when it turns from reading to writing.
+    """
+    with engine.connect() as connection:
+        connection.execution_options(**{_WRITE_LOCK: True})
+        with connection.begin():
+            yield connection
+
+
+def _prepare_sqlite_connection(dbapi_connection, _record) -> None:
+    dbapi_connection.isolation_level = None  # turn off the driver's own BEGIN; see the begin listener
+    cursor = dbapi_connection.cursor()
+    for pragma in _SQLITE_PRAGMAS:
+        cursor.execute(f"PRAGMA {pragma}")
+    cursor.close()
+
+
+def _begin_sqlite_transaction(connection: Connection) -> None:
+    immediate = connection.get_execution_options().get(_WRITE_LOCK, False)
+    connection.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")

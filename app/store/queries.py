@@ -1,0 +1,206 @@
+"""Reading assessments: the index, one assessment's record, and its scores as the frames of ``frames``."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import Connection, Engine, Row, Table, and_, select
+
+from foldwise import frames
+from foldwise.payload import Configuration, Design, Family
+from foldwise.store import tables
+from foldwise.store.lookup import created_at_of, find_assessment, require_assessment
+
+INDEX_COLUMNS = ["uuid", "name", "dataset", "created_at", "task", "n_repeats", "n_outer_folds",
+                 "n_inner_folds", "n_configs", "families", "selection_metric", "estimate_mean", "estimate_sd"]
+FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "message"]
+_SCORES = {"score": "float64", "fit_time": "float64", "score_time": "float64"}
+
+
+@dataclass(frozen=True)
+class AssessmentRecord:
+    """One assessment without its scores: what a page header or an API summary shows.
+
+    ``estimate_mean`` and ``estimate_sd`` are the nested estimate: mean and sample sd (ddof=1) of the
+    overall fold winners' outer scores on the selection metric, NaN where undefined.
+    """
+
+    uuid: str
+    name: str
+    dataset: str | None
+    created_at: datetime
+    design: Design
+    families: list[Family]
+    configurations: list[Configuration]
+    fingerprint: str
+    versions: dict[str, str]
+    seeds: dict[str, Any]
+    total_fit_time: float
+    estimate_mean: float
+    estimate_sd: float
+    n_inner_scores: int
+    n_outer_scores: int
+    n_failures: int
+
+
+def list_assessments(engine: Engine, *, dataset: str | None = None, name: str | None = None) -> pd.DataFrame:
+    """The stored assessments, newest first, optionally those whose dataset or name contains a text.
+
+    Filters ignore case. ``created_at`` is in UTC; ``families`` lists family names in payload order.
+    """
+    a = tables.assessments
+    where = [column.icontains(text, autoescape=True)
+             for column, text in ((a.c.dataset, dataset), (a.c.name, name)) if text]
+    with engine.connect() as connection:
+        index = pd.read_sql(select(a.c.id, *(a.c[column] for column in INDEX_COLUMNS if column != "families"))
+                            .where(*where).order_by(a.c.created_at.desc(), a.c.id.desc()), connection)
+        members = connection.execute(
+            select(tables.families.c.assessment_id, tables.families.c.name)
+            .where(tables.families.c.assessment_id.in_(select(a.c.id).where(*where)))
+            .order_by(tables.families.c.assessment_id, tables.families.c.position)).all()
+    names: dict[int, list[str]] = {}
+    for assessment_id, family in members:
+        names.setdefault(assessment_id, []).append(family)
+    index["families"] = pd.Series([names.get(i, []) for i in index["id"]], index=index.index, dtype=object)
+    index["created_at"] = pd.to_datetime(index["created_at"]).dt.tz_localize("UTC")
+    index = index.astype({"n_repeats": "int64", "n_outer_folds": "int64", "n_inner_folds": "int64",
+                          "n_configs": "int64", "estimate_mean": "float64", "estimate_sd": "float64"})
+    return index[INDEX_COLUMNS]
+
+
+def get_assessment(engine: Engine, uuid: str) -> AssessmentRecord | None:
+    """The assessment's record, or None when the store has no assessment with that uuid."""
+    with engine.connect() as connection:
+        row = find_assessment(connection, uuid)
+        return None if row is None else record_from(connection, row)
+
+
+def inner_scores_for(engine: Engine, uuid: str, *, repeat: int | None = None,
+                     outer_fold: int | None = None) -> pd.DataFrame:
+    """Every inner score (columns ``frames.INNER_COLUMNS``), in payload order, optionally of one fold."""
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        return inner_frame(connection, row, repeat=repeat, outer_fold=outer_fold)
+
+
+def outer_scores_for(engine: Engine, uuid: str) -> pd.DataFrame:
+    """Every outer score (columns ``frames.OUTER_COLUMNS``) in payload order, with fold sizes and winners."""
+    with engine.connect() as connection:
+        return outer_frame(connection, require_assessment(connection, uuid))
+
+
+def winners_for(engine: Engine, uuid: str) -> pd.DataFrame:
+    """The overall fold winners, by ``frames.winners_frame`` on the selection metric."""
+    return _winners(engine, uuid, flag="overall_winner")
+
+
+def family_winners_for(engine: Engine, uuid: str) -> pd.DataFrame:
+    """Each family's fold winners, by ``frames.winners_frame`` on the selection metric."""
+    return _winners(engine, uuid, flag="family_winner")
+
+
+def failures_for(engine: Engine, uuid: str) -> pd.DataFrame:
+    """The failed fits in payload order; ``inner_fold`` is a nullable Int64 (missing for outer fits)."""
+    f, c = tables.failures, tables.configurations
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        query = (select(f.c.level, f.c.repeat, f.c.outer_fold, f.c.inner_fold, c.c.family,
+                        c.c.config_id.label("config"), f.c.message)
+                 .join(c, and_(c.c.assessment_id == f.c.assessment_id, c.c.position == f.c.config))
+                 .where(f.c.assessment_id == row.id).order_by(f.c.position))
+        frame = pd.read_sql(query, connection)
+    return frame.astype({"repeat": "int64", "outer_fold": "int64", "inner_fold": "Int64"})[FAILURE_COLUMNS]
+
+
+def record_from(connection: Connection, row: Row) -> AssessmentRecord:
+    f = tables.families
+    families = connection.execute(select(f.c.name, f.c.estimator, f.c.estimator_class)
+                                  .where(f.c.assessment_id == row.id).order_by(f.c.position)).all()
+    return AssessmentRecord(
+        uuid=row.uuid, name=row.name, dataset=row.dataset, created_at=created_at_of(row),
+        design=Design.model_validate(row.design), families=[Family(**family._mapping) for family in families],
+        configurations=configurations_of(connection, row.id), fingerprint=row.fingerprint,
+        versions=row.versions, seeds=row.seeds, total_fit_time=row.total_fit_time,
+        estimate_mean=_nan_for_none(row.estimate_mean), estimate_sd=_nan_for_none(row.estimate_sd),
+        n_inner_scores=row.n_inner_scores, n_outer_scores=row.n_outer_scores, n_failures=row.n_failures)
+
+
+def configurations_of(connection: Connection, assessment_id: int) -> list[Configuration]:
+    c = tables.configurations
+    rows = connection.execute(select(c.c.config_id, c.c.family, c.c.params)
+                              .where(c.c.assessment_id == assessment_id).order_by(c.c.position)).all()
+    return [Configuration(id=config, family=family, params=params) for config, family, params in rows]
+
+
+def inner_frame(connection: Connection, row: Row, *, repeat: int | None = None, outer_fold: int | None = None,
+                metric: int | None = None) -> pd.DataFrame:
+    s = tables.inner_scores
+    where = [s.c[name] == value for name, value in
+             _fold_filter(row, repeat=repeat, outer_fold=outer_fold).items()]
+    if metric is not None:
+        where.append(s.c.metric == metric)
+    query = (select(s.c.repeat, s.c.outer_fold, s.c.inner_fold, *_score_columns(s))
+             .where(s.c.assessment_id == row.id, *where).order_by(s.c.position))
+    frame = pd.read_sql(query, connection, dtype={"repeat": "int64", "outer_fold": "int64",
+                                                  "inner_fold": "int64"} | _SCORES)
+    return _name_configs(connection, row, frame)[frames.INNER_COLUMNS]
+
+
+def outer_frame(connection: Connection, row: Row) -> pd.DataFrame:
+    s, o = tables.outer_scores, tables.outer_folds
+    query = (select(s.c.repeat, s.c.outer_fold, *_score_columns(s), o.c.n_train, o.c.n_test)
+             .join(o, and_(o.c.assessment_id == s.c.assessment_id, o.c.repeat == s.c.repeat,
+                           o.c.outer_fold == s.c.outer_fold))
+             .where(s.c.assessment_id == row.id).order_by(s.c.position))
+    frame = pd.read_sql(query, connection, dtype={"repeat": "int64", "outer_fold": "int64",
+                                                  "n_train": "int64", "n_test": "int64"} | _SCORES)
+    keys = pd.MultiIndex.from_arrays([frame["repeat"], frame["outer_fold"], frame["config"]])
+    ch = tables.fold_choices
+    choices = connection.execute(select(ch.c.kind, ch.c.repeat, ch.c.outer_fold, ch.c.config)
+                                 .where(ch.c.assessment_id == row.id)).all()
+    for kind in ("family", "overall"):
+        chosen = [(r, o, c) for k, r, o, c in choices if k == kind]
+        frame[f"{kind}_winner"] = keys.isin(chosen) if chosen else np.zeros(len(frame), dtype=bool)
+    return _name_configs(connection, row, frame)[frames.OUTER_COLUMNS]
+
+
+def _winners(engine: Engine, uuid: str, *, flag: str) -> pd.DataFrame:
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        inner = inner_frame(connection, row, metric=0)  # the selection metric's rows are all it reads
+        outer = outer_frame(connection, row)
+    return frames.winners_frame(inner, outer, row.selection_metric, flag=flag)
+
+
+def _score_columns(table: Table) -> list:
+    return [table.c.config, table.c.metric, table.c.score, table.c.fit_time, table.c.score_time]
+
+
+def _fold_filter(row: Row, *, repeat: int | None, outer_fold: int | None) -> dict[str, int]:
+    chosen = {"repeat": (repeat, row.n_repeats), "outer_fold": (outer_fold, row.n_outer_folds)}
+    for name, (value, size) in chosen.items():
+        if value is not None and not (isinstance(value, int | np.integer) and 0 <= value < size):
+            raise ValueError(f"{name} must be an integer in 0..{size - 1} for assessment {row.uuid}; "
+                             f"received {value!r}")
+    return {name: int(value) for name, (value, _) in chosen.items() if value is not None}
+
+
+def _name_configs(connection: Connection, row: Row, frame: pd.DataFrame) -> pd.DataFrame:
+    """Config and metric positions replaced by family, config id, params and metric name."""
+    configs = configurations_of(connection, row.id)
+    ids, families, params = (np.empty(len(configs), dtype=object) for _ in range(3))
+    for position, config in enumerate(configs):
+        ids[position], families[position], params[position] = config.id, config.family, config.params
+    positions = frame["config"].to_numpy(dtype=np.int64)
+    frame["family"], frame["config"], frame["params"] = families[positions], ids[positions], params[positions]
+    metrics = np.array(Design.model_validate(row.design).metrics, dtype=object)
+    frame["metric"] = metrics[frame["metric"].to_numpy(dtype=np.int64)]
+    return frame
+
+
+def _nan_for_none(value: float | None) -> float:
+    return float("nan") if value is None else value

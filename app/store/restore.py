@@ -1,0 +1,123 @@
+"""Reading back what the payload carried as it was: outer folds, predictions, the whole payload."""
+
+from __future__ import annotations
+
+import base64
+from dataclasses import dataclass
+
+import numpy as np
+from sqlalchemy import Connection, Engine, Row, Table, and_, select
+
+from foldwise.payload import (
+    AssessmentPayload,
+    Failure,
+    FoldChoice,
+    InnerScores,
+    OuterFold,
+    OuterScores,
+    Prediction,
+)
+from foldwise.store import tables
+from foldwise.store.lookup import find_assessment, require_assessment
+from foldwise.store.queries import configurations_of, record_from
+
+
+@dataclass(frozen=True, eq=False)
+class StoredPrediction:
+    """One configuration's outer-test predictions in one outer fold, rows in the fold's test order."""
+
+    repeat: int
+    outer_fold: int
+    config: str
+    kind: str
+    values: np.ndarray  # float64, shape (n_test, n_columns)
+
+
+def outer_folds_for(engine: Engine, uuid: str) -> list[OuterFold]:
+    """The outer folds in payload order, with their test indices and true targets."""
+    with engine.connect() as connection:
+        return _outer_folds(connection, require_assessment(connection, uuid).id)
+
+
+def predictions_for(engine: Engine, uuid: str, *, configs: list[str] | None = None) -> list[StoredPrediction]:
+    """The outer-test predictions in payload order, of every configuration or of the ids in ``configs``."""
+    p, c = tables.predictions, tables.configurations
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        where = [p.c.assessment_id == row.id]
+        if configs is not None:
+            _refuse_unknown_configs(connection, row, configs)
+            where.append(c.c.config_id.in_(configs))
+        rows = connection.execute(
+            select(p.c.repeat, p.c.outer_fold, c.c.config_id, p.c.kind, p.c.n_columns, p.c.data)
+            .join(c, and_(c.c.assessment_id == p.c.assessment_id, c.c.position == p.c.config))
+            .where(*where).order_by(p.c.position)).all()
+    return [StoredPrediction(repeat=r, outer_fold=o, config=config, kind=kind,
+                             values=_floats(data, n_columns)) for r, o, config, kind, n_columns, data in rows]
+
+
+def load_payload(engine: Engine, uuid: str) -> AssessmentPayload | None:
+    """The payload exactly as it was stored, or None when the store has no assessment with that uuid."""
+    with engine.connect() as connection:
+        row = find_assessment(connection, uuid)
+        return None if row is None else _payload(connection, row)
+
+
+def _payload(connection: Connection, row: Row) -> AssessmentPayload:
+    record = record_from(connection, row)
+    ch, p, f = tables.fold_choices, tables.predictions, tables.failures
+
+    def rows(table: Table, names: list[str], *where) -> list[Row]:
+        return _rows(connection, table, row.id, names, *where)
+
+    def choices(kind: str) -> list[FoldChoice]:
+        return [FoldChoice(**choice._mapping)
+                for choice in rows(ch, ["repeat", "outer_fold", "config"], ch.c.kind == kind)]
+
+    return AssessmentPayload(
+        schema_version=row.schema_version, uuid=row.uuid, name=row.name, dataset=row.dataset,
+        created_at=record.created_at, design=record.design, families=record.families,
+        configurations=record.configurations, outer_folds=_outer_folds(connection, row.id),
+        inner_scores=InnerScores(**_columns(connection, tables.inner_scores, row.id)),
+        outer_scores=OuterScores(**_columns(connection, tables.outer_scores, row.id)),
+        family_winners=choices("family"), overall_winners=choices("overall"),
+        predictions=[Prediction(repeat=r, outer_fold=o, config=c, kind=kind, n_columns=n_columns,
+                                data=base64.b64encode(data).decode("ascii"))
+                     for r, o, c, kind, n_columns, data in rows(p, tables.payload_fields(p))],
+        failures=[Failure(**failure._mapping) for failure in rows(f, tables.payload_fields(f))],
+        versions=row.versions, seeds=row.seeds, total_fit_time=row.total_fit_time)
+
+
+def _outer_folds(connection: Connection, assessment_id: int) -> list[OuterFold]:
+    names = ["repeat", "outer_fold", "n_train", "test_indices", "y_true"]
+    return [OuterFold(repeat=r, outer_fold=o, n_train=n_train, y_true=y_true,
+                      test_indices=np.frombuffer(indices, dtype="<i8").tolist())
+            for r, o, n_train, indices, y_true in _rows(connection, tables.outer_folds, assessment_id, names)]
+
+
+def _columns(connection: Connection, table: Table, assessment_id: int) -> dict[str, list]:
+    """A score block back in the payload's columnar form (None for null)."""
+    names = tables.payload_fields(table)
+    rows = _rows(connection, table, assessment_id, names)
+    values = zip(*rows, strict=True) if rows else ([] for _ in names)
+    return {name: list(column) for name, column in zip(names, values, strict=True)}
+
+
+def _rows(connection: Connection, table: Table, assessment_id: int, names: list[str], *where) -> list[Row]:
+    """The named columns of an assessment's rows of ``table``, in payload order."""
+    return connection.execute(select(*(table.c[name] for name in names))
+                              .where(table.c.assessment_id == assessment_id, *where)
+                              .order_by(table.c.position)).all()
+
+
+def _floats(data: bytes, n_columns: int) -> np.ndarray:
+    """Raw little-endian float64 as a writable native array of ``n_columns`` columns."""
+    return np.frombuffer(data, dtype="<f8").astype(np.float64).reshape(-1, n_columns)
+
+
+def _refuse_unknown_configs(connection: Connection, row: Row, configs: list[str]) -> None:
+    known = {config.id for config in configurations_of(connection, row.id)}
+    unknown = [config for config in configs if config not in known]
+    if unknown:
+        raise ValueError(f"configs {unknown} are not configurations of assessment {row.uuid}; "
+                         f"its {len(known)} configuration ids are in get_assessment(...).configurations")

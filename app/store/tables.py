@@ -1,0 +1,156 @@
+"""The tables an assessment is kept in: one row per assessment, child tables for everything in it.
+
+Every child row carries its ``position`` in the payload's list, so reading back in position order gives
+the payload's order. Configurations and metrics are referred to by position, as in the payload.
+Predictions and test indices are raw little-endian binary (float64, int64): compact and bit-exact.
+The migrations in ``migrations/versions`` build this same schema; a test compares the two.
+"""
+
+from __future__ import annotations
+
+from sqlalchemy import (
+    JSON,
+    Column,
+    DateTime,
+    Double,
+    ForeignKey,
+    Index,
+    Integer,
+    LargeBinary,
+    MetaData,
+    PrimaryKeyConstraint,
+    String,
+    Table,
+    Text,
+    UniqueConstraint,
+)
+
+# Named constraints, so that later migrations can refer to them on SQLite and PostgreSQL alike.
+metadata = MetaData(naming_convention={
+    "ix": "ix_%(table_name)s_%(column_0_N_name)s",
+    "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+})
+
+assessments = Table(
+    "assessments", metadata,
+    Column("id", Integer, primary_key=True),
+    Column("uuid", String(36), nullable=False, unique=True),
+    Column("name", String(200), nullable=False),
+    Column("dataset", String(200)),
+    # UTC wall time without zone (the same on every backend), plus the payload's own offset.
+    Column("created_at", DateTime(timezone=False), nullable=False, index=True),
+    Column("utc_offset", Integer, comment="seconds east of UTC; null when the payload's time had no zone"),
+    Column("schema_version", Integer, nullable=False),
+    Column("task", String(20), nullable=False),
+    Column("n_repeats", Integer, nullable=False),
+    Column("n_outer_folds", Integer, nullable=False),
+    Column("n_inner_folds", Integer, nullable=False),
+    Column("n_configs", Integer, nullable=False),
+    Column("selection_metric", Text, nullable=False),
+    Column("design", JSON, nullable=False),
+    Column("versions", JSON, nullable=False),
+    Column("seeds", JSON, nullable=False),
+    Column("fingerprint", String(32), nullable=False),
+    Column("total_fit_time", Double, nullable=False),
+    Column("estimate_mean", Double),
+    Column("estimate_sd", Double),
+    Column("n_inner_scores", Integer, nullable=False),
+    Column("n_outer_scores", Integer, nullable=False),
+    Column("n_failures", Integer, nullable=False),
+)
+
+
+def _owner() -> Column:
+    return Column("assessment_id", Integer, ForeignKey("assessments.id", ondelete="CASCADE"), nullable=False)
+
+
+def _child(name: str, *columns, key: tuple[str, ...] = ("assessment_id", "position")) -> Table:
+    return Table(name, metadata, _owner(), Column("position", Integer, nullable=False), *columns,
+                 PrimaryKeyConstraint(*key))
+
+
+families = _child(
+    "families",
+    Column("name", String(200), nullable=False),
+    Column("estimator", Text, nullable=False),
+    Column("estimator_class", String(500), nullable=False),
+)
+
+configurations = _child(
+    "configurations",
+    Column("config_id", Text, nullable=False),
+    Column("family", String(200), nullable=False),
+    Column("params", JSON, nullable=False),
+)
+
+outer_folds = _child(
+    "outer_folds",
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("n_train", Integer, nullable=False),
+    Column("n_test", Integer, nullable=False),
+    Column("test_indices", LargeBinary, nullable=False, comment="little-endian int64"),
+    Column("y_true", JSON(none_as_null=True)),
+    UniqueConstraint("assessment_id", "repeat", "outer_fold"),
+)
+
+
+def _score_columns() -> list[Column]:
+    return [Column("config", Integer, nullable=False), Column("metric", Integer, nullable=False),
+            Column("score", Double), Column("fit_time", Double), Column("score_time", Double)]
+
+
+inner_scores = _child(
+    "inner_scores",
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("inner_fold", Integer, nullable=False),
+    *_score_columns(),
+    Index(None, "assessment_id", "repeat", "outer_fold"),
+)
+
+outer_scores = _child(
+    "outer_scores",
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    *_score_columns(),
+    Index(None, "assessment_id", "repeat", "outer_fold"),
+)
+
+fold_choices = _child(
+    "fold_choices",
+    Column("kind", String(10), nullable=False, comment="'family' or 'overall' winner"),
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("config", Integer, nullable=False),
+    key=("assessment_id", "kind", "position"),
+)
+
+predictions = _child(
+    "predictions",
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("config", Integer, nullable=False),
+    Column("kind", String(10), nullable=False),
+    Column("n_columns", Integer, nullable=False),
+    Column("data", LargeBinary, nullable=False, comment="little-endian float64, row-major"),
+)
+
+failures = _child(
+    "failures",
+    Column("level", String(10), nullable=False),
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("inner_fold", Integer),
+    Column("config", Integer, nullable=False),
+    Column("message", Text, nullable=False),
+)
+
+
+
+def payload_fields(table: Table) -> list[str]:
+    """A child table's columns other than its owner and position: the payload's field names."""
+    return [column.name for column in table.columns][2:]

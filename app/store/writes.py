@@ -1,0 +1,149 @@
+"""Writing assessments: one transaction per assessment, bulk inserts built column by column."""
+
+from __future__ import annotations
+
+import base64
+import math
+from collections.abc import Iterable, Sequence
+from datetime import UTC
+from itertools import islice, repeat
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import Connection, Double, Engine, Integer, Table, delete, insert, select
+from sqlalchemy.exc import IntegrityError
+
+from foldwise.payload import AssessmentPayload
+from foldwise.store import tables
+from foldwise.store.engine import write_transaction
+from foldwise.store.lookup import uuid_text
+
+_CHUNK = 20_000  # rows per executemany: bounded memory for an assessment of any size
+
+
+def insert_assessment(engine: Engine, payload: AssessmentPayload) -> bool:
+    """Store ``payload``; True when newly stored, False when its uuid is already in the store.
+
+    All rows go in one transaction, so no reader ever sees half an assessment. The assessment row
+    goes first: the uuid's unique constraint then settles a race between two writers of one
+    assessment (the second waits for the first and finds the uuid taken), on any backend.
+    """
+    try:
+        with write_transaction(engine) as connection:
+            assessment_id = connection.execute(
+                insert(tables.assessments).values(**_assessment_row(payload))).inserted_primary_key[0]
+            _insert_children(connection, assessment_id, payload)
+    except IntegrityError:
+        if _is_stored(engine, str(payload.uuid)):
+            return False
+        raise
+    return True
+
+
+def delete_assessment(engine: Engine, uuid: str) -> bool:
+    """Remove an assessment and, by cascade, all its rows; True when there was one to remove."""
+    with write_transaction(engine) as connection:
+        result = connection.execute(delete(tables.assessments)
+                                    .where(tables.assessments.c.uuid == uuid_text(uuid)))
+    return result.rowcount > 0
+
+
+def _is_stored(engine: Engine, uuid: str) -> bool:
+    query = select(tables.assessments.c.id).where(tables.assessments.c.uuid == uuid)
+    with engine.connect() as connection:
+        return connection.scalar(query) is not None
+
+
+def _assessment_row(payload: AssessmentPayload) -> dict:
+    design, created = payload.design, payload.created_at
+    offset = created.utcoffset()
+    mean, sd = _nested_estimate(payload)
+    return {
+        "uuid": str(payload.uuid), "name": payload.name, "dataset": payload.dataset,
+        "created_at": created if offset is None else created.astimezone(UTC).replace(tzinfo=None),
+        "utc_offset": None if offset is None else int(offset.total_seconds()),
+        "schema_version": payload.schema_version, "task": design.task, "n_repeats": design.n_repeats,
+        "n_outer_folds": design.n_outer_folds, "n_inner_folds": design.n_inner_folds,
+        "n_configs": len(payload.configurations), "selection_metric": design.selection_metric,
+        "design": design.model_dump(mode="json"), "versions": payload.versions, "seeds": payload.seeds,
+        "fingerprint": payload.fingerprint(), "total_fit_time": payload.total_fit_time,
+        "estimate_mean": mean, "estimate_sd": sd,
+        "n_inner_scores": len(payload.inner_scores), "n_outer_scores": len(payload.outer_scores),
+        "n_failures": len(payload.failures),
+    }
+
+
+def _nested_estimate(payload: AssessmentPayload) -> tuple[float | None, float | None]:
+    """Mean and sample sd (ddof=1) of the overall winners' outer scores on the selection metric.
+
+    Taken in (repeat, outer fold) order with pandas' NaN-skipping mean and std, as from the
+    ``outer_score`` column of ``frames.winners_frame``; None where undefined.
+    """
+    chosen = {(c.repeat, c.outer_fold, c.config) for c in payload.overall_winners}
+    columns = payload.outer_scores
+    rows = sorted((r, o, np.nan if s is None else s)
+                  for r, o, c, m, s in zip(columns.repeat, columns.outer_fold, columns.config, columns.metric,
+                                           columns.score, strict=True)
+                  if m == 0 and (r, o, c) in chosen)
+    scores = pd.Series([score for _, _, score in rows], dtype="float64")
+    return _or_none(scores.mean()), _or_none(scores.std())
+
+
+def _or_none(value: float) -> float | None:
+    return None if math.isnan(value) else float(value)
+
+
+def _insert_children(connection: Connection, assessment_id: int, payload: AssessmentPayload) -> None:
+    def put(table: Table, columns: dict[str, Sequence]) -> None:
+        _insert_columns(connection, table, assessment_id, columns)
+
+    put(tables.families, _fields(payload.families, ["name", "estimator", "estimator_class"]))
+    put(tables.configurations, _fields(payload.configurations, ["family", "params"])
+        | {"config_id": [c.id for c in payload.configurations]})
+    folds = payload.outer_folds
+    put(tables.outer_folds, _fields(folds, ["repeat", "outer_fold", "n_train", "y_true"]) | {
+        "n_test": [len(f.test_indices) for f in folds],
+        "test_indices": [np.asarray(f.test_indices, dtype="<i8").tobytes() for f in folds]})
+    for table, block in ((tables.inner_scores, payload.inner_scores),
+                         (tables.outer_scores, payload.outer_scores)):
+        put(table, {name: getattr(block, name) for name in tables.payload_fields(table)})
+    for kind, choices in (("family", payload.family_winners), ("overall", payload.overall_winners)):
+        put(tables.fold_choices, _fields(choices, ["repeat", "outer_fold", "config"])
+            | {"kind": [kind] * len(choices)})
+    predictions = payload.predictions
+    put(tables.predictions, _fields(predictions, ["repeat", "outer_fold", "config", "kind", "n_columns"])
+        | {"data": [base64.b64decode(p.data) for p in predictions]})
+    put(tables.failures, _fields(payload.failures, tables.payload_fields(tables.failures)))
+
+
+def _fields(items: Sequence, names: list[str]) -> dict[str, list]:
+    return {name: [getattr(item, name) for item in items] for name in names}
+
+
+def _insert_columns(connection: Connection, table: Table, assessment_id: int,
+                    columns: dict[str, Sequence]) -> None:
+    """Executemany the rows of equal-length ``columns`` in chunks, numbered by their position."""
+    size = len(next(iter(columns.values())))
+    values = {"assessment_id": repeat(assessment_id, size), "position": range(size)} | columns
+    if all(isinstance(column.type, Integer | Double) for column in table.columns):
+        _insert_numbers(connection, table, values)
+        return
+    keys = list(values)
+    rows = (dict(zip(keys, row, strict=True)) for row in zip(*values.values(), strict=True))
+    while chunk := list(islice(rows, _CHUNK)):
+        connection.execute(insert(table), chunk)
+
+
+def _insert_numbers(connection: Connection, table: Table, values: dict[str, Iterable]) -> None:
+    """Rows of plain numbers straight to the driver, as tuples when its paramstyle is positional.
+
+    Integers, floats and None need no conversion by SQLAlchemy, whose per-row parameter handling would
+    otherwise take most of the time of a large assessment (the score tables).
+    """
+    statement = insert(table).compile(dialect=connection.dialect)
+    keys = statement.positiontup if statement.positional else [column.name for column in table.columns]
+    rows = zip(*(values[key] for key in keys), strict=True)
+    if not statement.positional:
+        rows = (dict(zip(keys, row, strict=True)) for row in rows)
+    while chunk := list(islice(rows, _CHUNK)):
+        connection.exec_driver_sql(statement.string, chunk)

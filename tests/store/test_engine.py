@@ -1,0 +1,126 @@
+"""Store locations, the SQLite settings of every connection, and the migrations."""
+
+from __future__ import annotations
+
+import sqlite3
+import threading
+from pathlib import Path
+
+import pytest
+from alembic.autogenerate import compare_metadata
+from alembic.config import Config
+from alembic.runtime.migration import MigrationContext
+from alembic.script import ScriptDirectory
+from sqlalchemy import inspect
+from sqlalchemy.exc import IntegrityError
+
+import foldwise.store
+from foldwise.store import db_url_from, default_db_url, insert_assessment, load_payload, make_engine, tables
+
+
+def revisions(connection) -> list[str]:
+    return connection.exec_driver_sql("SELECT version_num FROM alembic_version").scalars().all()
+
+
+def test_db_url_from_turns_a_path_into_an_absolute_sqlite_url_and_leaves_urls_alone(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert db_url_from("runs/a.db") == f"sqlite:///{tmp_path / 'runs' / 'a.db'}"
+    assert (tmp_path / "runs").is_dir()
+    assert db_url_from("postgresql://user@host/foldwise") == "postgresql://user@host/foldwise"
+    assert db_url_from("sqlite://") == "sqlite://"
+    with pytest.raises(ValueError, match=r"file path or a SQLAlchemy URL.*received ''"):
+        db_url_from("")
+
+
+def test_default_db_url_follows_foldwise_db_then_xdg_then_home(tmp_path):
+    assert default_db_url({"FOLDWISE_DB": "sqlite:///x.db", "XDG_DATA_HOME": str(tmp_path)}) == "sqlite:///x.db"
+    assert default_db_url({"FOLDWISE_DB": str(tmp_path / "mine.db")}) == f"sqlite:///{tmp_path / 'mine.db'}"
+    xdg = tmp_path / "data"
+    assert default_db_url({"XDG_DATA_HOME": str(xdg)}) == f"sqlite:///{xdg / 'foldwise' / 'foldwise.db'}"
+    assert (xdg / "foldwise").is_dir()
+    home = tmp_path / "home"
+    expected = f"sqlite:///{home / '.local' / 'share' / 'foldwise' / 'foldwise.db'}"
+    assert default_db_url({"HOME": str(home)}) == expected
+    # The XDG base directory specification says a relative path in XDG_DATA_HOME is to be ignored.
+    assert default_db_url({"HOME": str(home), "XDG_DATA_HOME": "relative/data"}) == expected
+
+
+def test_make_engine_twice_on_one_file_migrates_once_and_shares_the_data(db_path, make_payload):
+    url = db_url_from(str(db_path))
+    first, second = make_engine(url), make_engine(url)
+    payload = make_payload()
+    assert insert_assessment(first, payload)
+    assert load_payload(second, payload.uuid) == payload
+    with second.connect() as connection:
+        assert revisions(connection) == ["0001"]
+    first.dispose()
+    second.dispose()
+
+
+def test_alembic_version_is_at_the_head_of_the_migration_scripts(engine):
+    config = Config()
+    config.set_main_option("script_location", str(Path(foldwise.store.__file__).parent / "migrations"))
+    head = ScriptDirectory.from_config(config).get_current_head()  # Alembic's own reading of the scripts
+    with engine.connect() as connection:
+        assert head is not None
+        assert MigrationContext.configure(connection).get_current_revision() == head
+
+
+def test_migrated_schema_matches_the_tables_module(engine):
+    # Alembic's autogenerate comparison lists every difference between a live database and a MetaData.
+    with engine.connect() as connection:
+        assert compare_metadata(MigrationContext.configure(connection), tables.metadata) == []
+        names = set(inspect(connection).get_table_names())
+    assert names == {table.name for table in tables.metadata.sorted_tables} | {"alembic_version"}
+
+
+def test_every_connection_has_wal_foreign_keys_busy_timeout_and_normal_sync(engine, db_path):
+    # SQLite's documentation of PRAGMA synchronous: 1 is NORMAL.
+    expected = {"journal_mode": "wal", "foreign_keys": 1, "busy_timeout": 30000, "synchronous": 1}
+    with engine.connect() as one, engine.connect() as two:  # two pooled connections at once
+        for connection in (one, two):
+            seen = {name: connection.exec_driver_sql(f"PRAGMA {name}").scalar() for name in expected}
+            assert seen == expected
+    # WAL is a property of the file: a plain sqlite3 connection, outside SQLAlchemy, sees it too.
+    with sqlite3.connect(db_path) as raw:
+        assert raw.execute("PRAGMA journal_mode").fetchone() == ("wal",)
+    raw.close()
+
+
+def test_foreign_keys_are_enforced(engine):
+    with pytest.raises(IntegrityError, match="FOREIGN KEY constraint failed"), engine.begin() as connection:
+        connection.execute(tables.failures.insert().values(
+            assessment_id=12345, position=0, level="outer", repeat=0, outer_fold=0, config=0, message="x"))
+
+
+def test_an_in_memory_store_works(make_payload):
+    engine = make_engine("sqlite://")
+    payload = make_payload()
+    assert insert_assessment(engine, payload)
+    assert load_payload(engine, payload.uuid) == payload
+    engine.dispose()
+
+
+def test_several_engines_opening_a_fresh_file_at_once_all_succeed(db_path):
+    # As separate processes would: each engine migrates inside one write transaction, so the later ones
+    # wait for the first and then find the schema at head, rather than fail creating the same tables.
+    url = db_url_from(str(db_path))
+    start, engines, errors = threading.Barrier(4), [], []
+
+    def open_store():
+        start.wait()
+        try:
+            engines.append(make_engine(url))
+        except Exception as error:  # reported below, with the thread's error text
+            errors.append(error)
+
+    threads = [threading.Thread(target=open_store) for _ in range(4)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert errors == []
+    with engines[0].connect() as connection:
+        assert revisions(connection) == ["0001"]
+    for engine in engines:
+        engine.dispose()
