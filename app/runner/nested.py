@@ -41,7 +41,8 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         scikit-learn scorer names; the first selects. Defaults to accuracy (classifiers) or r2.
     groups : array-like, optional
         Group labels, passed to the outer splitter and, restricted to the outer training rows, to
-        the inner one.
+        the inner one (an int ``inner`` resolves to an ungrouped splitter: pass e.g. ``GroupKFold``
+        to keep groups apart inside too).
     n_jobs : int, optional
         Workers of the one joblib pool; ``joblib.parallel_config(backend=...)`` picks where they run.
     refit_all : bool
@@ -162,7 +163,10 @@ def _refit_first(scoring, refit):
 def _task_of(space: Space) -> bool:
     kinds = {family: is_classifier(estimator) for family, estimator in space.estimators.items()}
     if len(set(kinds.values())) > 1:
-        raise ValueError(f"families mix classifiers and regressors: {kinds}")
+        classifiers = [family for family, is_one in kinds.items() if is_one]
+        regressors = [family for family, is_one in kinds.items() if not is_one]
+        raise ValueError(f"families mix classifiers {classifiers} and regressors {regressors}; one assessment "
+                         f"holds one task, so run them as two")
     return next(iter(kinds.values()))
 
 

@@ -77,6 +77,9 @@ class Recorder:
 
     def finish(self) -> Assessment:
         """Pick the fold winners from the recorded inner scores and build the assessment."""
+        if not self._folds or not self._inner:
+            raise ValueError(f"nothing to finish: {len(self._folds)} outer folds and {len(self._inner)} inner "
+                             f"scores recorded; call outer_fold(...) and inner(...) first")
         configs = list(self._configs.values())
         families = list(dict.fromkeys(config.family for config in configs))
         members = [[i for i, config in enumerate(configs) if config.family == family] for family in families]

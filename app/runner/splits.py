@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,7 +34,8 @@ def lay_out(X, y, groups, *, outer, inner, classifier: bool) -> Layout:
 
     ``outer`` and ``inner`` are ints or splitters, resolved with ``check_cv`` (stratified for
     classifiers), as ``GridSearchCV`` and ``cross_val_score`` resolve them. Inner splits see only the
-    outer training rows, and the group labels of those rows.
+    outer training rows, and the group labels of those rows; an inner splitter that ignores groups
+    splits them ungrouped.
     """
     outer_cv = check_cv(outer, y, classifier=classifier)
     raw = list(outer_cv.split(X, y, groups))
@@ -47,8 +49,12 @@ def lay_out(X, y, groups, *, outer, inner, classifier: bool) -> Layout:
         groups_train = None if groups is None else _safe_indexing(groups, train)
         inner_cv = check_cv(inner, y_train, classifier=classifier)
         inner_repr = repr(inner_cv)
-        inner_splits = [(train[a], train[b]) for a, b in inner_cv.split(_safe_indexing(X, train), y_train,
-                                                                         groups_train)]
+        with warnings.catch_warnings():
+            # The groups are there for an inner splitter that uses them; one that does not (an int
+            # resolves to StratifiedKFold or KFold, as in GridSearchCV) was chosen ungrouped on purpose.
+            warnings.filterwarnings("ignore", "The groups parameter is ignored", UserWarning)
+            inner_splits = [(train[a], train[b]) for a, b in inner_cv.split(_safe_indexing(X, train), y_train,
+                                                                             groups_train)]
         inner_counts.add(len(inner_splits))
         splits.append(OuterSplit(i // per_repeat, i % per_repeat, train, test, inner_splits))
     if len(inner_counts) != 1:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import time
 import traceback
+import warnings
 
 import numpy as np
 from sklearn.base import clone, is_classifier
@@ -93,7 +94,9 @@ def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, kee
     started_cpu = time.process_time()
     fitted = clone(search)
     fit_args = {} if groups is None else {"groups": _safe_indexing(groups, train)}
-    fitted.fit(_safe_indexing(X, train), _safe_indexing(y, train), **fit_args)
+    with warnings.catch_warnings():  # as in lay_out: a search whose cv ignores groups splits ungrouped
+        warnings.filterwarnings("ignore", "The groups parameter is ignored", UserWarning)
+        fitted.fit(_safe_indexing(X, train), _safe_indexing(y, train), **fit_args)
     cv = fitted.cv_results_
     n_splits = fitted.n_splits_
 
