@@ -47,7 +47,7 @@ def run_fit(task: FitTask, estimator, params, X, y, scorer, metrics, classes) ->
         prediction = outer_predictions(model, X_test, classes) if task.predict else None
         score_time = time.perf_counter() - started
     except Exception as error:  # a failing fit is data, not a crash: it is kept with its message
-        message = "".join(traceback.format_exception_only(error)).strip()
+        message = "".join(traceback.format_exception_only(error)).strip()[:10_000]
         return FitResult(task.key, dict.fromkeys(metrics, np.nan), fit_time, score_time,
                          time.process_time() - started_cpu, None, message)
     return FitResult(task.key, scores, fit_time, score_time, time.process_time() - started_cpu, prediction)
