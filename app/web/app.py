@@ -16,7 +16,18 @@ from foldwise.settings import Settings
 from foldwise.store import make_engine
 from foldwise.web import api
 from foldwise.web.formatting import FILTERS
-from foldwise.web.pages import assessment_detail, index
+from foldwise.web.pages import (
+    assessment_detail,
+    assessments_compare,
+    compute_cost,
+    fold_winners,
+    index,
+    inner_detail,
+    optimism,
+    paired_comparison,
+    ranking,
+    score_distributions,
+)
 from foldwise.web.resources import plotly_js, static_dir, templates_dir
 
 CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
@@ -39,6 +50,14 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(api.health)
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
+    app.include_router(score_distributions.router)
+    app.include_router(fold_winners.router)
+    app.include_router(optimism.router)
+    app.include_router(inner_detail.router)
+    app.include_router(compute_cost.router)
+    app.include_router(paired_comparison.router)
+    app.include_router(ranking.router)
+    app.include_router(assessments_compare.router)
 
     @app.get("/vendor/plotly.min.js", include_in_schema=False, name="plotly_js")
     def plotly():

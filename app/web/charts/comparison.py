@@ -1,0 +1,172 @@
+"""Figures of the comparison pages: per-fold differences, the posterior of the mean difference, mean ranks."""
+
+from __future__ import annotations
+
+import numpy as np
+import plotly.graph_objects as go
+from scipy import stats
+
+from foldwise.web.charts.base import INK, MUTED, figure_json, styled
+
+_BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
+
+
+def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str, str],
+                            colours: tuple[str, str]) -> str:
+    """Bars of a − b per outer fold, grouped by repeat, with the zero line and the ±ROPE band."""
+    labels = [_fold_label(fold) for fold in folds]
+    present = [fold for fold in folds if fold["diff"] is not None]
+    against = colours[1] if colours[1] != colours[0] else MUTED
+    figure = go.Figure(go.Bar(
+        x=[_fold_label(fold) for fold in present], y=[fold["diff"] for fold in present],
+        marker_color=[colours[0] if fold["diff"] >= 0 else against for fold in present],
+        customdata=[[fold["repeat"], fold["outer_fold"], fold["a"], fold["b"]] for fold in present],
+        hovertemplate=(f"repeat %{{customdata[0]}}, outer fold %{{customdata[1]}}<br>{_short(names[0])}: "
+                       f"%{{customdata[2]:.4f}}<br>{_short(names[1])}: %{{customdata[3]:.4f}}"
+                       "<br>difference %{y:.4f}<extra></extra>")))
+    missing = [fold for fold in folds if fold["diff"] is None]
+    if missing:
+        figure.add_scatter(x=[_fold_label(fold) for fold in missing], y=[0] * len(missing), mode="markers",
+                           marker={"symbol": "x-thin-open", "size": 12, "color": MUTED, "line": {"width": 2}},
+                           hovertemplate="no score here (a failed fit)<extra></extra>")
+    _rope_band(figure, rope, horizontal=True)
+    figure.add_hline(y=0, line_color=INK, line_width=1)
+    for position in range(1, len(folds)):
+        if folds[position]["repeat"] != folds[position - 1]["repeat"]:
+            figure.add_vline(x=position - 0.5, line_color=MUTED, line_dash="dot", line_width=1)
+    figure.update_xaxes(type="category", categoryorder="array", categoryarray=labels)
+    styled(figure, x_title="outer fold (r = repeat, f = fold)",
+           y_title=f"{_short(names[0])} − {_short(names[1])}", height=340)
+    return figure_json(figure)
+
+
+def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str]) -> str:
+    """Density of the Student posterior of the mean difference a − b, ROPE shaded, probabilities labelled."""
+    loc, scale, df = result["posterior_loc"], result["posterior_scale"], result["df"]
+    figure = go.Figure()
+    if scale > 0:
+        low = min(stats.t.ppf(0.005, df, loc=loc, scale=scale), -1.5 * rope)
+        high = max(stats.t.ppf(0.995, df, loc=loc, scale=scale), 1.5 * rope)
+        edges = [value for value in (-rope, rope) if low <= value <= high]
+        x = np.union1d(np.linspace(low, high, 401), edges)
+        y = stats.t.pdf(x, df, loc=loc, scale=scale)
+        for region, colour in ((x <= -rope, colours[1]), (np.abs(x) <= rope, MUTED), (x >= rope, colours[0])):
+            figure.add_scatter(x=x[region], y=y[region], mode="lines", fill="tozeroy", line={"color": colour},
+                               fillcolor=_tint(colour, 0.35), hovertemplate="d = %{x:.4f}<extra></extra>")
+    else:
+        figure.add_scatter(x=[loc, loc], y=[0, 1], mode="lines", line={"color": INK, "width": 3},
+                           hovertemplate="all posterior mass at d = %{x:.4f}<extra></extra>")
+        figure.add_annotation(x=loc, y=1, text="zero spread: the posterior is a point mass", showarrow=False,
+                              yshift=12)
+        figure.update_yaxes(showticklabels=False)
+    _rope_band(figure, rope, horizontal=False)
+    labels = ((0.0, "left", f"P({_short(names[1])} better) = {_probability(result['bayes_b'])}"),
+              (0.5, "center", f"P(practically equivalent) = {_probability(result['bayes_rope'])}"),
+              (1.0, "right", f"P({_short(names[0])} better) = {_probability(result['bayes_a'])}"))
+    for position, anchor, text in labels:
+        figure.add_annotation(x=position, xref="paper", y=1.1, yref="paper", xanchor=anchor, text=text,
+                              showarrow=False)
+    styled(figure, x_title=f"mean difference {_short(names[0])} − {_short(names[1])}", y_title="density",
+           height=360)
+    figure.update_layout(margin={"t": 60})
+    return figure_json(figure)
+
+
+def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str, str]) -> str:
+    """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank."""
+    order = sorted(mean_ranks, key=mean_ranks.get)
+    best, k = mean_ranks[order[0]], len(order)
+    figure = go.Figure(go.Scatter(
+        x=[mean_ranks[family] for family in order], y=order, mode="markers+text",
+        marker={"size": 14, "color": [colours[family] for family in order]},
+        text=[f"{mean_ranks[family]:.2f}" for family in order], textposition="middle right",
+        hovertemplate="%{y}: mean rank %{x:.3f}<extra></extra>"))
+    figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
+    for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
+        bar = x0 != x1
+        figure.add_shape(type="line", xref="x", yref="paper", x0=x0, x1=x1, y0=1.06 if bar else 1.03,
+                         y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
+    figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
+                          text=f"  CD = {critical_difference:.2f}", showarrow=False)
+    figure.update_xaxes(range=[0.6, max(k, 1 + critical_difference) + 0.5], dtick=1)
+    figure.update_yaxes(type="category", autorange="reversed")
+    styled(figure, x_title="mean rank over the outer folds (1 = best)", height=120 + 48 * k)
+    figure.update_layout(margin={"t": 50, "l": 120})
+    return figure_json(figure)
+
+
+def paired_strips_figure(comparisons: list[dict], *, rope: float) -> str:
+    """Per comparison of two assessments: each outer fold's difference x − y as a point, the mean as a bar."""
+    figure = go.Figure()
+    usable = [c for c in comparisons if c["result"] is not None]
+    for comparison in usable:
+        diffs = [fold["diff"] for fold in comparison["folds"] if fold["diff"] is not None]
+        figure.add_scatter(x=diffs, y=[comparison["label"]] * len(diffs), mode="markers",
+                           marker={"color": MUTED, "size": 9, "opacity": 0.8},
+                           hovertemplate="fold difference %{x:.4f}<extra></extra>")
+        figure.add_scatter(x=[comparison["result"]["mean_diff"]], y=[comparison["label"]], mode="markers",
+                           marker={"color": INK, "size": 20, "symbol": "line-ns", "line": {"width": 3}},
+                           hovertemplate="mean difference %{x:.4f}<extra></extra>")
+    _rope_band(figure, rope, horizontal=False)
+    figure.add_vline(x=0, line_color=INK, line_width=1)
+    figure.update_yaxes(type="category", autorange="reversed")
+    styled(figure, x_title="x − y per outer fold", height=110 + 46 * max(len(usable), 1))
+    figure.update_layout(margin={"l": 220})
+    return figure_json(figure)
+
+
+def intervals_figure(summaries: list[dict], *, colours: dict[str, str]) -> str:
+    """Mean and 95% interval of each candidate in each assessment, side by side (unpaired)."""
+    figure = go.Figure()
+    for side, symbol in (("x", "circle"), ("y", "diamond")):
+        rows = [row for row in summaries if row[side] is not None and row[side]["mean"] is not None]
+        figure.add_scatter(
+            x=[row["candidate"] for row in rows], y=[row[side]["mean"] for row in rows], name=side,
+            mode="markers", offsetgroup=side,
+            marker={"symbol": symbol, "size": 12,
+                    "color": [colours.get(row["candidate"], INK) for row in rows]},
+            error_y={"type": "data", "symmetric": False, "color": MUTED,
+                     "array": [_gap(row[side]["ci_high"], row[side]["mean"]) for row in rows],
+                     "arrayminus": [_gap(row[side]["mean"], row[side]["ci_low"]) for row in rows]},
+            hovertemplate=f"{side}: %{{x}}<br>mean %{{y:.4f}}<extra></extra>")
+    styled(figure, y_title="mean outer score ± 95% interval", height=360)
+    figure.update_layout(scattermode="group", showlegend=True, legend={"title": {"text": "assessment"}})
+    return figure_json(figure)
+
+
+def _rope_band(figure: go.Figure, rope: float, *, horizontal: bool) -> None:
+    if rope <= 0:
+        return
+    band = {"fillcolor": _BAND, "line_width": 0, "layer": "below"}
+    if horizontal:
+        figure.add_hrect(y0=-rope, y1=rope, annotation_text=f"ROPE ±{rope:g}", annotation_position="top left",
+                         **band)
+    else:
+        figure.add_vrect(x0=-rope, x1=rope, annotation_text=f"ROPE ±{rope:g}", annotation_position="bottom",
+                         **band)
+
+
+def _fold_label(fold: dict) -> str:
+    return f"r{fold['repeat']}·f{fold['outer_fold']}"
+
+
+def _short(name: str, limit: int = 28) -> str:
+    return name if len(name) <= limit else name[: limit - 1] + "…"
+
+
+def _probability(p: float) -> str:
+    # Three decimals, but never printed as 0 or 1 unless it is exactly that.
+    if 0 < p < 0.001:
+        return "< 0.001"
+    if 0.999 < p < 1:
+        return "> 0.999"
+    return f"{p:.3f}"
+
+
+def _gap(high: float | None, low: float | None) -> float | None:
+    return None if high is None or low is None else high - low
+
+
+def _tint(colour: str, alpha: float) -> str:
+    red, green, blue = (int(colour[i:i + 2], 16) for i in (1, 3, 5))
+    return f"rgba({red}, {green}, {blue}, {alpha})"

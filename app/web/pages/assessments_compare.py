@@ -1,0 +1,180 @@
+"""Two assessments side by side: paired fold by fold when their outer folds match, else summaries only."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import pandas as pd
+from fastapi import APIRouter, HTTPException, Request
+
+from foldwise import frames
+from foldwise.stats.paired import compare_paired
+from foldwise.stats.summaries import score_summary
+from foldwise.store import AssessmentRecord, list_assessments, outer_scores_for
+from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
+from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
+from foldwise.web.lookup import record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain, records
+
+router = APIRouter()
+
+SELECTION = "overall fold winners"  # the candidate that stands for the whole selection procedure
+_SUMMARY_FIELDS = ("n", "n_missing", "mean", "sd", "ci_low", "ci_high")
+
+
+@dataclass(frozen=True)
+class Side:
+    """One assessment's outer scores, laid out per outer fold."""
+
+    record: AssessmentRecord
+    families: pd.DataFrame  # one column per family: its fold winners' outer scores
+    overall: pd.Series  # the overall fold winners' outer scores
+    sizes: pd.DataFrame  # n_train, n_test per outer fold
+    best: str | None  # the family with the best mean outer score
+
+
+@dataclass(frozen=True)
+class AssessmentsCompareContext:
+    assessments: list[dict]  # every stored assessment, for the two selects
+    x_choice: str  # what the selects show: the requested uuids, else the two newest assessments
+    y_choice: str
+    x: AssessmentRecord | None
+    y: AssessmentRecord | None
+    metric: str | None
+    metrics: list[str]  # metrics recorded in both
+    rope: float
+    paired: bool
+    reason: str  # why the folds cannot be paired; empty when they can
+    comparisons: list[dict]  # label, kind, x, y, result (compare_paired output or None), error, folds
+    summaries: list[dict]  # candidate, kind, x and y: score_summary fields (None where absent)
+    differences_figure: str | None
+    intervals_figure: str | None
+
+
+def assessments_compare_context(engine, *, x: str | None, y: str | None, metric: str | None,
+                                rope: float) -> AssessmentsCompareContext:
+    if not (math.isfinite(rope) and rope >= 0):
+        raise HTTPException(422, f"rope must be a finite number >= 0 (in score units, e.g. 0.01); "
+                                 f"got {rope!r}")
+    listing = records(list_assessments(engine))
+    if not (x and y):
+        newest = [row["uuid"] for row in listing]
+        x = x or next(iter(newest), "")
+        y = y or next((uuid for uuid in newest if uuid != x), "")
+        return AssessmentsCompareContext(listing, x, y, None, None, None, [], rope, False, "", [], [],
+                                         None, None)
+    first, second = record_or_404(engine, x), record_or_404(engine, y)
+    metrics = [m for m in first.design.metrics if m in second.design.metrics]
+    metric = _common_metric(first, second, metric, metrics)
+    left, right = _side(engine, first, metric), _side(engine, second, metric)
+    reason = _unpaired_reason(first, second)
+    comparisons = [] if reason else _comparisons(left, right, rope=rope)
+    summaries = _summaries(left, right)
+    families = list(dict.fromkeys([f.name for f in first.families] + [f.name for f in second.families]))
+    return AssessmentsCompareContext(
+        assessments=listing, x_choice=first.uuid, y_choice=second.uuid, x=first, y=second, metric=metric,
+        metrics=metrics, rope=rope, paired=not reason, reason=reason, comparisons=comparisons,
+        summaries=summaries,
+        differences_figure=paired_strips_figure(comparisons, rope=rope) if comparisons else None,
+        intervals_figure=intervals_figure(summaries, colours=family_colours(families)))
+
+@router.get("/compare", name="assessments_compare")
+def assessments_compare(request: Request, x: str | None = None, y: str | None = None,
+                        metric: str | None = None, rope: float = 0.01):
+    context = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+    return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
+                                                        {"page": context})
+
+
+@router.get("/api/compare", name="assessments_compare_json")
+def assessments_compare_json(request: Request, x: str, y: str,
+                             metric: str | None = None, rope: float = 0.01):
+    """Two assessments: paired tests family by family when their outer folds match, else summaries."""
+    page = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+    return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,
+            "paired": page.paired, "reason": page.reason or None,
+            "fingerprints": {"x": page.x.fingerprint, "y": page.y.fingerprint},
+            "comparisons": page.comparisons, "summaries": page.summaries}
+
+
+def _common_metric(x: AssessmentRecord, y: AssessmentRecord, metric: str | None, common: list[str]) -> str:
+    if not common:
+        raise HTTPException(422, f"the two assessments share no metric: x recorded {x.design.metrics}, "
+                                 f"y recorded {y.design.metrics}")
+    if metric is None:
+        return common[0]
+    if metric not in common:
+        raise HTTPException(422, f"metric {metric!r} must be recorded in both assessments; x recorded "
+                                 f"{x.design.metrics}, y recorded {y.design.metrics}; choose one of {common}")
+    return metric
+
+
+def _side(engine, record: AssessmentRecord, metric: str) -> Side:
+    outer = outer_scores_for(engine, record.uuid)
+    ranked = frames.family_summary(outer, metric).dropna(subset=["mean"])["family"]
+    return Side(record=record, families=family_fold_scores(outer, metric, [f.name for f in record.families]),
+                overall=overall_fold_scores(outer, metric), sizes=fold_sizes(outer),
+                best=str(ranked.iloc[0]) if len(ranked) else None)
+
+
+def _unpaired_reason(x: AssessmentRecord, y: AssessmentRecord) -> str:
+    if x.fingerprint == y.fingerprint:
+        return ""
+    dx, dy = x.design, y.design
+    if dx.n_samples != dy.n_samples:
+        return (f"x has {dx.n_samples} rows and y has {dy.n_samples}: they were run on different data, so no "
+                "outer fold of one is an outer fold of the other")
+    if (dx.n_repeats, dx.n_outer_folds) != (dy.n_repeats, dy.n_outer_folds):
+        return (f"x has {dx.n_repeats} repeat(s) × {dx.n_outer_folds} outer folds and y has {dy.n_repeats} × "
+                f"{dy.n_outer_folds}: the outer folds cannot be matched one to one")
+    return (f"both have {dx.n_samples} rows and {dx.n_repeats} repeat(s) × {dx.n_outer_folds} outer folds, "
+            "but the folds hold different rows (another splitter or random_state), so their scores are "
+            "not paired")
+
+
+def _comparisons(x: Side, y: Side, *, rope: float) -> list[dict]:
+    pairs = [("selection procedure", f"{SELECTION} of x vs {SELECTION} of y", SELECTION, SELECTION,
+              x.overall, y.overall)]
+    if x.best and y.best:
+        pairs.append(("best family", f"best of x ({x.best}) vs best of y ({y.best})", x.best, y.best,
+                      x.families[x.best], y.families[y.best]))
+    pairs += [("family", family, family, family, x.families[family], y.families[family])
+              for family in x.families.columns if family in y.families.columns]
+    return [_compare(kind, label, in_x, in_y, a, b, x.sizes, rope=rope)
+            for kind, label, in_x, in_y, a, b in pairs]
+
+
+def _compare(kind: str, label: str, in_x: str, in_y: str, a: pd.Series, b: pd.Series, sizes: pd.DataFrame, *,
+             rope: float) -> dict:
+    row = {"kind": kind, "label": label, "x": in_x, "y": in_y, "result": None, "error": None,
+           "folds": fold_pairs(a, b)}
+    try:
+        result = compare_paired(a.to_numpy(), b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
+                                n_test=sizes["n_test"].to_numpy(), rope=rope,
+                                names=(f"{in_x} (x)", f"{in_y} (y)"))
+    except ValueError as error:
+        row["error"] = str(error)
+        return row
+    row["result"] = {key: plain(value) for key, value in result.items()}
+    return row
+
+
+def _summaries(x: Side, y: Side) -> list[dict]:
+    families = list(dict.fromkeys([*x.families.columns, *y.families.columns]))
+    rows = [{"candidate": SELECTION, "kind": "selection procedure",
+             "x": _summary(x.overall), "y": _summary(y.overall)}]
+    for family in families:
+        rows.append({"candidate": family, "kind": "family",
+                     "x": _summary(x.families[family]) if family in x.families.columns else None,
+                     "y": _summary(y.families[family]) if family in y.families.columns else None})
+    return rows
+
+
+def _summary(scores: pd.Series) -> dict:
+    try:
+        summary = score_summary(scores.to_numpy())
+    except ValueError:  # no score left: every fit of this candidate failed
+        return {"n": 0, "n_missing": int(scores.size)} | dict.fromkeys(_SUMMARY_FIELDS[2:])
+    return {key: plain(getattr(summary, key)) for key in _SUMMARY_FIELDS}

@@ -1,0 +1,129 @@
+"""Compute cost: the fits an assessment took, their CPU seconds, and the time other designs would take."""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import pandas as pd
+from fastapi import APIRouter, HTTPException, Request
+
+from foldwise.stats.planner import project_wall_time
+from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
+from foldwise.web.charts.cost import cost_figure
+from foldwise.web.context_json import context_json
+from foldwise.web.lookup import record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain
+
+router = APIRouter()
+
+DEFAULT_CORES = 2
+_MOST = 100_000  # a sanity bound on every planner input
+
+
+@dataclass(frozen=True)
+class CostContext:
+    record: AssessmentRecord
+    families: list[str]
+    colours: dict[str, str]
+    fits: dict  # inner, outer, total fits done; inner_failed, outer_failed
+    by_family: list[dict]  # family, n_fits, inner_seconds, outer_seconds, total_seconds (fit + score time)
+    by_level: dict  # inner_seconds, outer_seconds, total_seconds
+    mean_fit_seconds: float | None  # mean fit + score time of one recorded fit
+    plan: dict  # the planner's inputs: outer, inner, repeats, configs, cores, refits_per_fold
+    projection: dict | None  # stats.planner.Projection of the planned design, None without fit times
+    own_projection: dict | None  # the same for this assessment's own design on plan["cores"] cores
+    cost_figure: str
+
+
+def compute_cost_context(engine, uuid: str, *, outer: int | None = None, inner: int | None = None,
+                         repeats: int | None = None, configs: int | None = None,
+                         cores: int | None = None) -> CostContext:
+    record = record_or_404(engine, uuid)
+    design, selection = record.design, record.design.selection_metric
+    # Each fit is recorded once per metric with the same times: the selection metric's rows are the fits.
+    inner_fits = _fits(inner_scores_for(engine, uuid), selection)
+    outer_fits = _fits(outer_scores_for(engine, uuid), selection)
+    failures = failures_for(engine, uuid)
+    families = [family.name for family in record.families]
+    fits = {"inner": len(inner_fits), "outer": len(outer_fits), "total": len(inner_fits) + len(outer_fits),
+            "inner_failed": int((failures["level"] == "inner").sum()),
+            "outer_failed": int((failures["level"] == "outer").sum())}
+    by_family = [_family_cost(family, inner_fits, outer_fits) for family in families]
+    inner_seconds, outer_seconds = inner_fits["seconds"].sum(), outer_fits["seconds"].sum()
+    by_level = {"inner_seconds": plain(inner_seconds), "outer_seconds": plain(outer_seconds),
+                "total_seconds": plain(inner_seconds + outer_seconds)}
+    mean_fit = plain(pd.concat([inner_fits["seconds"], outer_fits["seconds"]]).mean())
+    cores = cores or DEFAULT_CORES
+    own = _design(design.n_outer_folds, design.n_inner_folds, design.n_repeats, len(record.configurations),
+                  cores, refit_all=design.refit_all, n_families=len(families))
+    plan = _design(outer or own["outer"], inner or own["inner"], repeats or own["repeats"],
+                   configs or own["configs"], cores, refit_all=design.refit_all, n_families=len(families))
+    colours = family_colours(families)
+    return CostContext(
+        record=record, families=families, colours=colours, fits=fits, by_family=by_family, by_level=by_level,
+        mean_fit_seconds=mean_fit, plan=plan, projection=_project(mean_fit, plan),
+        own_projection=_project(mean_fit, own), cost_figure=cost_figure(by_family, colours))
+
+
+def _design(outer: int, inner: int, repeats: int, configs: int, cores: int, *, refit_all: bool,
+            n_families: int) -> dict:
+    # Refit as this assessment did: every configuration, or each family's winner.
+    refits = configs if refit_all else min(n_families, configs)
+    return {"outer": outer, "inner": inner, "repeats": repeats, "configs": configs, "cores": cores,
+            "refits_per_fold": refits}
+
+
+def _fits(scores: pd.DataFrame, metric: str) -> pd.DataFrame:
+    fits = scores[scores["metric"] == metric]
+    return fits.assign(seconds=fits["fit_time"] + fits["score_time"])[["family", "seconds"]]
+
+
+def _family_cost(family: str, inner_fits: pd.DataFrame, outer_fits: pd.DataFrame) -> dict:
+    inner = inner_fits.loc[inner_fits["family"] == family, "seconds"]
+    outer = outer_fits.loc[outer_fits["family"] == family, "seconds"]
+    return {"family": family, "n_fits": len(inner) + len(outer), "inner_seconds": plain(inner.sum()),
+            "outer_seconds": plain(outer.sum()), "total_seconds": plain(inner.sum() + outer.sum())}
+
+
+def _project(mean_fit: float | None, plan: dict) -> dict | None:
+    if mean_fit is None:
+        return None
+    try:
+        projection = project_wall_time(mean_fit, n_outer=plan["outer"], n_inner=plan["inner"],
+                                       n_repeats=plan["repeats"], n_configs=plan["configs"],
+                                       n_cores=plan["cores"], n_refits_per_fold=plan["refits_per_fold"])
+    except ValueError as error:
+        raise HTTPException(422, f"cannot plan {plan}: {error}") from None
+    return asdict(projection)
+
+
+def _counts(**given: str | None) -> dict[str, int | None]:
+    """Planner inputs from the query: whole numbers 1.._MOST; absent or left empty means the default."""
+    counts = {}
+    for name, text in given.items():
+        if text is None or not text.strip():
+            counts[name] = None
+            continue
+        try:
+            counts[name] = int(text)
+        except ValueError:
+            counts[name] = 0
+        if not 1 <= counts[name] <= _MOST:
+            raise HTTPException(422, f"{name} must be a whole number from 1 to {_MOST}; got {text!r}")
+    return counts
+
+
+@router.get("/assessments/{uuid}/cost", name="compute_cost")
+def compute_cost(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
+                 repeats: str | None = None, configs: str | None = None, cores: str | None = None):
+    counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
+    context = compute_cost_context(request.app.state.engine, uuid, **counts)
+    return request.app.state.templates.TemplateResponse(request, "compute_cost.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/cost", name="api_compute_cost")
+def compute_cost_json(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
+                      repeats: str | None = None, configs: str | None = None, cores: str | None = None):
+    counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
+    return context_json(compute_cost_context(request.app.state.engine, uuid, **counts))

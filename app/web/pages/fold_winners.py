@@ -1,0 +1,117 @@
+"""Fold winners: a repeat × outer fold grid of the chosen configurations, and how stable the choices were."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+
+import pandas as pd
+from fastapi import APIRouter, Request
+
+from foldwise import frames
+from foldwise.payload import Configuration
+from foldwise.store import AssessmentRecord, inner_scores_for, outer_scores_for
+from foldwise.web.charts.stability import choice_bars_figure
+from foldwise.web.context_json import context_json
+from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import records
+
+router = APIRouter()
+
+NOT_SET = "(not set)"
+
+
+@dataclass(frozen=True)
+class WinnerCell:
+    repeat: int
+    outer_fold: int
+    overall: dict | None  # the overall winner's row of frames.winners_frame
+    by_family: list[dict]  # per family, in the assessment's order: {"family", "winner": row or None}
+
+
+@dataclass(frozen=True)
+class FamilyStability:
+    family: str
+    n_folds: int  # outer folds (over repeats) in which the family had a winner
+    parameters: list[dict]  # {"parameter", "choices": [{"value", "label", "count", "share"}]}, grid order
+    bars_figure: str
+
+
+@dataclass(frozen=True)
+class FoldWinnersContext:
+    record: AssessmentRecord
+    metric: str
+    metrics: list[str]
+    families: list[str]
+    colours: dict[str, str]
+    outer_folds: list[int]  # the grid's columns
+    n_folds: int  # outer folds over all repeats
+    grid: list[list[WinnerCell]]  # one row per repeat, one cell per outer fold
+    stability: list[FamilyStability]
+
+
+def fold_winners_context(engine, uuid: str, *, metric: str | None) -> FoldWinnersContext:
+    record = record_or_404(engine, uuid)
+    metric = metric_or_422(record, metric)
+    inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
+    overall = frames.winners_frame(inner, outer, metric)
+    per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
+    families = [family.name for family in record.families]
+    colours = family_colours(families)
+    design = record.design
+    grid = [[_cell(repeat, fold, overall, per_family, families) for fold in range(design.n_outer_folds)]
+            for repeat in range(design.n_repeats)]
+    stability = []
+    for family in families:
+        chosen = per_family[per_family["family"] == family]["params"].tolist()
+        parameters = _choice_counts([c for c in record.configurations if c.family == family], chosen)
+        stability.append(FamilyStability(family=family, n_folds=len(chosen), parameters=parameters,
+                                         bars_figure=choice_bars_figure(parameters, colours[family])))
+    return FoldWinnersContext(record=record, metric=metric, metrics=design.metrics, families=families,
+                              colours=colours, outer_folds=list(range(design.n_outer_folds)),
+                              n_folds=len(overall), grid=grid, stability=stability)
+
+
+def _cell(repeat: int, fold: int, overall: pd.DataFrame, per_family: pd.DataFrame,
+          families: list[str]) -> WinnerCell:
+    def here(frame):
+        return frame[(frame["repeat"] == repeat) & (frame["outer_fold"] == fold)]
+
+    winner = records(here(overall))
+    mine = {row["family"]: row for row in records(here(per_family))}
+    return WinnerCell(repeat=repeat, outer_fold=fold, overall=winner[0] if winner else None,
+                      by_family=[{"family": family, "winner": mine.get(family)} for family in families])
+
+
+def _choice_counts(configs: list[Configuration], chosen: list[dict]) -> list[dict]:
+    """Per parameter of the family's grid, how often each of its values was the fold winners' choice."""
+    parameters: dict[str, dict[str, object]] = {}  # parameter -> value key -> value, in grid order
+    for config in configs:
+        for name, value in config.params.items():
+            parameters.setdefault(name, {}).setdefault(_key(value), value)
+    table = []
+    for name, values in parameters.items():
+        picked = [_key(params[name]) if name in params else NOT_SET for params in chosen]
+        if NOT_SET in picked or any(name not in c.params for c in configs):
+            values = {**values, NOT_SET: NOT_SET}
+        table.append({"parameter": name, "choices": [
+            {"value": value, "label": str(value), "count": picked.count(key),
+             "share": picked.count(key) / len(picked) if picked else None}
+            for key, value in values.items()]})
+    return table
+
+
+def _key(value) -> str:
+    return json.dumps(value, sort_keys=True)
+
+
+@router.get("/assessments/{uuid}/fold-winners", name="fold_winners")
+def fold_winners(request: Request, uuid: str, metric: str | None = None):
+    context = fold_winners_context(request.app.state.engine, uuid, metric=metric)
+    return request.app.state.templates.TemplateResponse(request, "fold_winners.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/fold-winners", name="api_fold_winners")
+def fold_winners_json(request: Request, uuid: str, metric: str | None = None):
+    return context_json(fold_winners_context(request.app.state.engine, uuid, metric=metric))

@@ -1,0 +1,120 @@
+"""Inner detail: one outer fold's configurations × inner folds, their scores, fit times and failed fits."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from fastapi import APIRouter, HTTPException, Request
+
+from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
+from foldwise.web.charts.inner import inner_heatmap_figure
+from foldwise.web.context_json import context_json
+from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain, records
+
+router = APIRouter()
+
+
+@dataclass(frozen=True)
+class ConfigRow:
+    config: str
+    family: str
+    params: dict
+    scores: list[float | None]  # per inner fold, None for a failed fit
+    fit_times: list[float | None]  # seconds per inner fold
+    inner_mean: float | None  # mean over the inner folds; None when one failed (it could not win)
+    inner_std: float | None  # population sd, as scikit-learn's std_test_score
+    mean_fit_time: float | None
+    outer_score: float | None  # refit on the outer training set, scored on its test fold
+    family_winner: bool
+    overall_winner: bool
+
+
+@dataclass(frozen=True)
+class InnerDetailContext:
+    record: AssessmentRecord
+    metric: str
+    metrics: list[str]
+    repeat: int
+    outer_fold: int
+    n_train: int | None
+    n_test: int | None
+    inner_folds: list[int]
+    families: list[str]
+    colours: dict[str, str]
+    configs: list[ConfigRow]  # grouped by family in the assessment's order, grid order within
+    failures: list[dict]  # this outer fold's failed fits: level, inner_fold, family, config, message
+    previous_fold: dict | None  # {"repeat", "outer_fold"} or None at the first fold
+    next_fold: dict | None
+    scores_figure: str
+    fit_times_figure: str
+
+
+def inner_detail_context(engine, uuid: str, *, repeat: int = 0, outer_fold: int = 0,
+                         metric: str | None = None) -> InnerDetailContext:
+    record = record_or_404(engine, uuid)
+    metric = metric_or_422(record, metric)
+    design = record.design
+    for name, value, size in (("repeat", repeat, design.n_repeats),
+                              ("outer_fold", outer_fold, design.n_outer_folds)):
+        if not 0 <= value < size:
+            raise HTTPException(422, f"{name} {value} is not in this assessment: choose 0..{size - 1}")
+    inner = inner_scores_for(engine, uuid, repeat=repeat, outer_fold=outer_fold)
+    inner = inner[inner["metric"] == metric]
+    outer = outer_scores_for(engine, uuid)
+    outer = outer[(outer["repeat"] == repeat) & (outer["outer_fold"] == outer_fold)
+                  & (outer["metric"] == metric)]
+    families = [family.name for family in record.families]
+    order = {family: position for position, family in enumerate(families)}
+    configurations = sorted(record.configurations, key=lambda c: order[c.family])  # stable: grid order kept
+    inner_folds = list(range(design.n_inner_folds))
+    configs = [_row(c, inner[inner["config"] == c.id], outer[outer["config"] == c.id], inner_folds)
+               for c in configurations]
+    failures = failures_for(engine, uuid)
+    failures = failures[(failures["repeat"] == repeat) & (failures["outer_fold"] == outer_fold)]
+    folds = [{"repeat": r, "outer_fold": o}
+             for r in range(design.n_repeats) for o in range(design.n_outer_folds)]
+    here = folds.index({"repeat": repeat, "outer_fold": outer_fold})
+    colours = family_colours(families)
+    return InnerDetailContext(
+        record=record, metric=metric, metrics=design.metrics, repeat=repeat, outer_fold=outer_fold,
+        n_train=plain(outer["n_train"].iloc[0]) if len(outer) else None,
+        n_test=plain(outer["n_test"].iloc[0]) if len(outer) else None, inner_folds=inner_folds,
+        families=families, colours=colours, configs=configs,
+        failures=records(failures.drop(columns=["repeat", "outer_fold"])),
+        previous_fold=folds[here - 1] if here > 0 else None,
+        next_fold=folds[here + 1] if here + 1 < len(folds) else None,
+        scores_figure=inner_heatmap_figure(configs, colours, value="scores", title=f"inner score ({metric})"),
+        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", title="fit time (s)"))
+
+
+def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int]) -> ConfigRow:
+    by_fold = inner.set_index("inner_fold").reindex(inner_folds)
+    scores = by_fold["score"].to_numpy(dtype=float)
+    complete = not np.isnan(scores).any()
+    return ConfigRow(
+        config=config.id, family=config.family, params=config.params,
+        scores=[plain(value) for value in scores], fit_times=[plain(value) for value in by_fold["fit_time"]],
+        inner_mean=plain(np.mean(scores)) if complete else None,
+        inner_std=plain(np.std(scores)) if complete else None,
+        mean_fit_time=plain(by_fold["fit_time"].mean()),
+        outer_score=plain(outer["score"].iloc[0]) if len(outer) else None,
+        family_winner=bool(outer["family_winner"].any()), overall_winner=bool(outer["overall_winner"].any()))
+
+
+@router.get("/assessments/{uuid}/inner", name="inner_detail")
+def inner_detail(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+                 metric: str | None = None):
+    context = inner_detail_context(request.app.state.engine, uuid, repeat=repeat, outer_fold=outer_fold,
+                                   metric=metric)
+    return request.app.state.templates.TemplateResponse(request, "inner_detail.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/inner", name="api_inner_detail")
+def inner_detail_json(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+                      metric: str | None = None):
+    return context_json(inner_detail_context(request.app.state.engine, uuid, repeat=repeat,
+                                             outer_fold=outer_fold, metric=metric))

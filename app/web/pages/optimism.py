@@ -1,0 +1,122 @@
+"""Optimism: the fold winners' inner mean against their outer score, and how well inner ranks carry over."""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Literal
+
+import pandas as pd
+from fastapi import APIRouter, Request
+
+from foldwise import frames
+from foldwise.stats.agreement import rank_agreement
+from foldwise.stats.summaries import optimism_summary, score_summary
+from foldwise.store import AssessmentRecord, inner_scores_for, outer_scores_for
+from foldwise.web.charts.optimism import optimism_figure
+from foldwise.web.context_json import context_json
+from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain, records
+
+router = APIRouter()
+
+AGREEMENT_NEEDS_REFIT_ALL = ("Rank agreement needs every configuration's outer score, which exists only when "
+                             "every configuration is refit on each outer fold (refit_all); this assessment "
+                             "refit the family winners only.")
+AGREEMENT_NEEDS_THREE = "Rank agreement needs at least 3 configurations; this assessment has {n}."
+_EMPTY = {"n": 0, "n_missing": 0, "mean": None, "sd": None, "min": None, "max": None, "ci_low": None,
+          "ci_high": None}
+
+
+@dataclass(frozen=True)
+class OptimismContext:
+    record: AssessmentRecord
+    metric: str
+    metrics: list[str]
+    level: str  # "overall" or "family": which fold winners are plotted
+    families: list[str]
+    colours: dict[str, str]
+    points: list[dict]  # frames.winners_frame rows: inner_mean, outer_score, optimism per outer fold
+    summaries: list[dict]  # {"label", "family"} + optimism_summary fields; the overall winners first
+    agreement: list[dict]  # per outer fold: repeat, outer_fold + rank_agreement fields
+    agreement_mean: dict  # {"spearman_rho": {"mean", "n", "n_missing"}, "kendall_tau": ...} or {}
+    agreement_message: str  # why no agreement is shown, or ""
+    optimism_figure: str
+
+
+def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "overall") -> OptimismContext:
+    record = record_or_404(engine, uuid)
+    metric = metric_or_422(record, metric)
+    inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
+    overall = frames.winners_frame(inner, outer, metric)
+    per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
+    families = [family.name for family in record.families]
+    summaries = [{"label": "overall winner", "family": None, **_optimism(overall)}]
+    if level == "family":
+        summaries += [{"label": family, "family": family,
+                       **_optimism(per_family[per_family["family"] == family])} for family in families]
+    agreement, message = [], ""
+    if not record.design.refit_all:
+        message = AGREEMENT_NEEDS_REFIT_ALL
+    elif len(record.configurations) < 3:
+        message = AGREEMENT_NEEDS_THREE.format(n=len(record.configurations))
+    else:
+        every = frames.winners_frame(inner, outer.assign(every=True), metric, flag="every")
+        agreement = [_agreement(int(repeat), int(outer_fold), fold)
+                     for (repeat, outer_fold), fold in every.groupby(["repeat", "outer_fold"])]
+    colours = family_colours(families)
+    points = records(overall if level == "overall" else per_family)
+    return OptimismContext(
+        record=record, metric=metric, metrics=record.design.metrics, level=level, families=families,
+        colours=colours, points=points, summaries=summaries, agreement=agreement,
+        agreement_mean=_agreement_mean(agreement), agreement_message=message,
+        optimism_figure=optimism_figure(points, colours, metric=metric))
+
+
+def _optimism(winners: pd.DataFrame) -> dict:
+    complete = winners["inner_mean"].notna() & winners["outer_score"].notna()
+    if not complete.any():
+        return {**_EMPTY, "n_missing": len(winners)}
+    summary = optimism_summary(winners["inner_mean"].to_numpy(dtype=float),
+                               winners["outer_score"].to_numpy(dtype=float))
+    return {name: plain(value) for name, value in asdict(summary).items()}
+
+
+def _agreement(repeat: int, outer_fold: int, fold: pd.DataFrame) -> dict:
+    where = {"repeat": repeat, "outer_fold": outer_fold}
+    try:
+        result = rank_agreement(fold["inner_mean"].to_numpy(dtype=float),
+                                fold["outer_score"].to_numpy(dtype=float))
+    except ValueError as error:  # fewer than 3 configurations left with both scores in this fold
+        n = int((fold["inner_mean"].notna() & fold["outer_score"].notna()).sum())
+        return {**where, "spearman_rho": None, "spearman_p": None, "kendall_tau": None, "kendall_p": None,
+                "n": n, "n_missing": len(fold) - n, "note": str(error)}
+    return {**where, **{name: plain(value) for name, value in asdict(result).items()}}
+
+
+def _agreement_mean(agreement: list[dict]) -> dict:
+    """Mean of each coefficient over the outer folds where it is defined, and over how many."""
+    means = {}
+    for name in ("spearman_rho", "kendall_tau"):
+        values = pd.Series([row[name] for row in agreement], dtype=float)
+        if values.notna().any():
+            summary = score_summary(values.to_numpy())
+            means[name] = {"mean": plain(summary.mean), "n": summary.n, "n_missing": summary.n_missing}
+    return means
+
+
+def _context(request: Request, uuid: str, metric, level) -> OptimismContext:
+    return optimism_context(request.app.state.engine, uuid, metric=metric, level=level)
+
+
+@router.get("/assessments/{uuid}/optimism", name="optimism")
+def optimism(request: Request, uuid: str, metric: str | None = None,
+             level: Literal["overall", "family"] = "overall"):
+    context = _context(request, uuid, metric, level)
+    return request.app.state.templates.TemplateResponse(request, "optimism.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/optimism", name="api_optimism")
+def optimism_json(request: Request, uuid: str, metric: str | None = None,
+                  level: Literal["overall", "family"] = "overall"):
+    return context_json(_context(request, uuid, metric, level))

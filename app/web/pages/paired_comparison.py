@@ -1,0 +1,134 @@
+"""Two candidates of one assessment, fold by fold: families (their fold winners) or configurations."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import pandas as pd
+from fastapi import APIRouter, HTTPException, Request
+
+from foldwise import frames
+from foldwise.stats.paired import compare_paired
+from foldwise.store import AssessmentRecord, outer_scores_for
+from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
+from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs, fold_sizes
+from foldwise.web.formatting import params_text
+from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain
+
+router = APIRouter()
+
+_LISTED = 12  # configuration ids named in an error message before "and N more"
+
+
+@dataclass(frozen=True)
+class Candidate:
+    value: str  # as written in the URL: a family name or a configuration id
+    kind: str   # "family" (its fold winners' outer scores) or "configuration" (its own outer scores)
+    family: str
+    label: str
+
+
+@dataclass(frozen=True)
+class PairedComparisonContext:
+    record: AssessmentRecord
+    metric: str
+    metrics: list[str]
+    rope: float
+    a: Candidate
+    b: Candidate
+    families: list[Candidate]
+    configurations: list[Candidate]  # empty unless every configuration was refit on every outer fold
+    colours: dict[str, str]
+    result: dict  # compare_paired's output, JSON-safe
+    folds: list[dict]  # repeat, outer_fold, a, b, diff
+    differences_figure: str
+    posterior_figure: str
+
+
+def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None, metric: str | None,
+                              rope: float) -> PairedComparisonContext:
+    record = record_or_404(engine, uuid)
+    metric = metric_or_422(record, metric)
+    outer = outer_scores_for(engine, uuid)
+    families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
+    configurations = [Candidate(config.id, "configuration", config.family,
+                                f"{config.family} ({params_text(config.params)})")
+                      for config in record.configurations] if record.design.refit_all else []
+    a, b = _defaults(outer, metric, [family.value for family in families], a or None, b or None)
+    first, second = (_candidate(record, families, configurations, value, side)
+                     for value, side in ((a, "a"), (b, "b")))
+    scores_a, scores_b = _scores(outer, metric, first), _scores(outer, metric, second)
+    sizes = fold_sizes(outer)
+    try:
+        result = compare_paired(scores_a.to_numpy(), scores_b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
+                                n_test=sizes["n_test"].to_numpy(), rope=rope,
+                                names=(first.label, second.label))
+    except ValueError as error:
+        raise HTTPException(422, f"cannot compare a={a!r} with b={b!r} on {metric!r}: {error}") from None
+    colours = family_colours([family.value for family in families])
+    pair_colours = (colours[first.family], colours[second.family])
+    folds = fold_pairs(scores_a, scores_b)
+    names = (first.label, second.label)
+    return PairedComparisonContext(
+        record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
+        families=families, configurations=configurations, colours=colours,
+        result={key: plain(value) for key, value in result.items()}, folds=folds,
+        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours),
+        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
+
+
+@router.get("/assessments/{uuid}/compare", name="paired_comparison")
+def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str | None = None,
+                      metric: str | None = None, rope: float = 0.01):
+    context = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
+    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json")
+def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b: str | None = None,
+                           metric: str | None = None, rope: float = 0.01):
+    """Paired tests of a − b over every outer fold of every repeat (a, b: families or configuration ids)."""
+    page = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
+    return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
+            "a": page.a.value, "a_kind": page.a.kind, "a_label": page.a.label,
+            "b": page.b.value, "b_kind": page.b.kind, "b_label": page.b.label,
+            "n_repeats": page.record.design.n_repeats, **page.result, "folds": page.folds}
+
+
+def _defaults(outer: pd.DataFrame, metric: str, families: list[str], a: str | None,
+              b: str | None) -> tuple[str, str]:
+    """Unset sides fall to the best families by mean outer score, a first, the same one only if alone."""
+    ranked = [str(family) for family in frames.family_summary(outer, metric)["family"]]
+    ranked += [family for family in families if family not in ranked]
+    if a is None:
+        a = next((family for family in ranked if family != b), ranked[0])
+    if b is None:
+        b = next((family for family in ranked if family != a), ranked[0])
+    return a, b
+
+
+def _candidate(record: AssessmentRecord, families: list[Candidate], configurations: list[Candidate],
+               value: str, side: str) -> Candidate:
+    for candidate in [*families, *configurations]:
+        if candidate.value == value:
+            return candidate
+    names = [family.value for family in families]
+    if any(config.id == value for config in record.configurations):
+        raise HTTPException(422, f"{side}={value!r} is a configuration, but this assessment refit only the "
+                                 f"family winners on each outer fold (design.refit_all is false), so a "
+                                 f"configuration has no outer score of its own; compare families: {names}")
+    known = f"families {names}"
+    if configurations:
+        ids = [config.value for config in configurations]
+        more = f" and {len(ids) - _LISTED} more" if len(ids) > _LISTED else ""
+        known += f" or configuration ids {ids[:_LISTED]}{more}"
+    raise HTTPException(422, f"{side}={value!r} is neither a family nor a configuration of this assessment; "
+                             f"choose one of the {known}")
+
+
+def _scores(outer: pd.DataFrame, metric: str, candidate: Candidate) -> pd.Series:
+    if candidate.kind == "family":
+        return family_fold_scores(outer, metric, [candidate.value])[candidate.value]
+    return config_fold_scores(outer, metric, [candidate.value])[candidate.value]

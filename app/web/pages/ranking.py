@@ -1,0 +1,68 @@
+"""Families ranked on each outer fold of one assessment: Friedman's test, Nemenyi's critical difference."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from fastapi import APIRouter, HTTPException, Request
+
+from foldwise import frames
+from foldwise.stats.ranking import rank_families
+from foldwise.store import AssessmentRecord, outer_scores_for
+from foldwise.web.charts.comparison import ranks_figure
+from foldwise.web.fold_scores import family_fold_scores
+from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain, records
+
+router = APIRouter()
+
+
+@dataclass(frozen=True)
+class RankingContext:
+    record: AssessmentRecord
+    metric: str
+    metrics: list[str]
+    colours: dict[str, str]
+    result: dict  # RankingResult's fields, JSON-safe
+    rows: list[dict]  # per family, best mean rank first: family, mean_rank, and its outer-score summary
+    blocks: list[dict]  # per outer fold: repeat, outer_fold and each family's fold winner's outer score
+    ranks_figure: str
+
+
+def ranking_context(engine, uuid: str, *, metric: str | None) -> RankingContext:
+    record = record_or_404(engine, uuid)
+    metric = metric_or_422(record, metric)
+    families = [family.name for family in record.families]
+    outer = outer_scores_for(engine, uuid)
+    scores = family_fold_scores(outer, metric, families)
+    try:
+        ranking = rank_families(scores)
+    except ValueError as error:
+        raise HTTPException(422, f"cannot rank the families {families} on {metric!r}: {error}") from None
+    summary = {row["family"]: row for row in records(frames.family_summary(outer, metric))}
+    rows = [{"family": family, "mean_rank": rank, **{key: summary.get(family, {}).get(key)
+                                                     for key in ("mean", "sd", "n")}}
+            for family, rank in sorted(ranking.mean_ranks.items(), key=lambda item: item[1])]
+    colours = family_colours(families)
+    return RankingContext(
+        record=record, metric=metric, metrics=record.design.metrics, colours=colours,
+        result={key: plain(getattr(ranking, key)) for key in
+                ("friedman_stat", "friedman_p", "critical_difference", "n_blocks", "n_missing", "note")}
+        | {"mean_ranks": ranking.mean_ranks},
+        rows=rows, blocks=records(scores.reset_index()),
+        ranks_figure=ranks_figure(ranking.mean_ranks, ranking.critical_difference, colours))
+
+
+@router.get("/assessments/{uuid}/ranking", name="ranking")
+def ranking(request: Request, uuid: str, metric: str | None = None):
+    context = ranking_context(request.app.state.engine, uuid, metric=metric)
+    return request.app.state.templates.TemplateResponse(request, "ranking.html", {"page": context})
+
+
+@router.get("/api/assessments/{uuid}/ranking", name="ranking_json")
+def ranking_json(request: Request, uuid: str, metric: str | None = None):
+    """Friedman's test over the outer folds, mean ranks (1 = best) and Nemenyi's critical difference."""
+    page = ranking_context(request.app.state.engine, uuid, metric=metric)
+    return {"uuid": page.record.uuid, "metric": page.metric, **page.result, "families": page.rows,
+            "blocks": page.blocks}

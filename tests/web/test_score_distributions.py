@@ -1,0 +1,153 @@
+"""The score distributions page and its JSON, checked against numpy and scipy on the runner's own frames."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pytest
+from scipy import stats
+from sklearn.datasets import load_breast_cancer
+from sklearn.linear_model import LogisticRegression
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+from sklearn.tree import DecisionTreeClassifier
+
+import foldwise
+
+
+def _push(client, assessment):
+    response = client.post("/api/assessments", content=assessment.payload.model_dump_json(),
+                           headers={"content-type": "application/json"})
+    assert response.status_code == 201, response.text
+
+
+def _figure(page: str, chart_id: str) -> dict:
+    found = re.search(rf'<script type="application/json" id="{chart_id}">(.*?)</script>', page, re.S)
+    return json.loads(found.group(1))
+
+
+def _expected_summary(scores: np.ndarray) -> dict:
+    """Mean, sample sd and the Student-t 95% interval (Student 1908), via scipy.stats.t.interval."""
+    n, mean, sd = scores.size, float(np.mean(scores)), float(np.std(scores, ddof=1))
+    low, high = stats.t.interval(0.95, n - 1, loc=mean, scale=sd / np.sqrt(n))
+    return {"n": n, "mean": mean, "sd": sd, "min": float(scores.min()), "max": float(scores.max()),
+            "ci_low": low, "ci_high": high}
+
+
+def _assert_summary(served: dict, scores: np.ndarray) -> None:
+    expected = _expected_summary(scores)
+    assert served["n"] == expected.pop("n")
+    assert served["n_missing"] == 0
+    for name, value in expected.items():
+        assert served[name] == pytest.approx(value, rel=0, abs=1e-12), name
+
+
+@pytest.fixture(scope="module")
+def winners_only():
+    """The same two families, with only each family's winner refit on the outer folds (refit_all=False)."""
+    X, y = load_breast_cancer(return_X_y=True)
+    space = {"logistic": (make_pipeline(StandardScaler(), LogisticRegression()),
+                          {"logisticregression__C": [0.01, 1.0]}),
+             "tree": (DecisionTreeClassifier(random_state=0), {"max_depth": [1, 3]})}
+    return foldwise.nested_cv(space, X[::4], y[::4], outer=3, inner=2, n_jobs=1, progress=False,
+                              refit_all=False, name="winners only")
+
+
+def test_family_estimates_match_numpy_and_the_student_t_interval(client, small_assessment):
+    _push(client, small_assessment)
+    body = client.get(f"/api/assessments/{small_assessment.uuid}/distributions").json()
+    outer = small_assessment.outer_scores
+    outer = outer[(outer["metric"] == "roc_auc")]
+    means = {}
+    for group in body["family_groups"]:
+        rows = outer[outer["family_winner"] & (outer["family"] == group["family"])]
+        scores = rows["score"].to_numpy(dtype=float)
+        _assert_summary(group["summary"], scores)
+        assert sorted(point["score"] for point in group["points"]) == sorted(scores.tolist())
+        means[group["family"]] = scores.mean()
+    # Sorted by mean, best first (the default).
+    assert [g["family"] for g in body["family_groups"]] == sorted(means, key=means.get, reverse=True)
+    _assert_summary(body["overall"], outer[outer["overall_winner"]]["score"].to_numpy(dtype=float))
+    assert body["overall"]["mean"] == pytest.approx(small_assessment.nested_estimate[0], abs=1e-12)
+    assert body["config_groups"] == [] and body["by"] == "family"
+
+
+def test_any_recorded_metric_and_sorting_by_name(client, small_assessment):
+    _push(client, small_assessment)
+    body = client.get(f"/api/assessments/{small_assessment.uuid}/distributions",
+                      params={"metric": "accuracy", "sort": "name"}).json()
+    assert body["metric"] == "accuracy" and body["sort"] == "name"
+    assert [g["family"] for g in body["family_groups"]] == ["logistic", "tree"]
+    outer = small_assessment.outer_scores
+    for group in body["family_groups"]:
+        rows = outer[(outer["metric"] == "accuracy") & outer["family_winner"]
+                     & (outer["family"] == group["family"])]
+        _assert_summary(group["summary"], rows["score"].to_numpy(dtype=float))
+    refused = client.get(f"/api/assessments/{small_assessment.uuid}/distributions", params={"metric": "r2"})
+    assert refused.status_code == 422 and "roc_auc" in refused.json()["detail"]
+
+
+def test_every_configuration_when_every_configuration_was_refit(client, small_assessment):
+    _push(client, small_assessment)
+    uuid = small_assessment.uuid
+    body = client.get(f"/api/assessments/{uuid}/distributions", params={"by": "config"}).json()
+    assert body["by"] == "config" and body["message"] == ""
+    outer = small_assessment.outer_scores
+    outer = outer[outer["metric"] == "roc_auc"]
+    configs = [c.id for c in small_assessment.payload.configurations]
+    assert sorted(g["config"] for g in body["config_groups"]) == sorted(configs)
+    for group in body["config_groups"]:
+        scores = outer[outer["config"] == group["config"]]["score"].to_numpy(dtype=float)
+        _assert_summary(group["summary"], scores)
+    # Grouped by family in the families' order on the page, best mean first within each.
+    families = [g["family"] for g in body["family_groups"]]
+    seen = [g["family"] for g in body["config_groups"]]
+    assert seen == sorted(seen, key=families.index)
+    for family in families:
+        mine = [g["summary"]["mean"] for g in body["config_groups"] if g["family"] == family]
+        assert mine == sorted(mine, reverse=True)
+    page = client.get(f"/assessments/{uuid}/distributions", params={"by": "config"}).text
+    assert len(_figure(page, "distributions")["data"]) == len(configs)
+    assert '<option value="config" selected>' in page
+    assert 'id="config-estimates"' in page
+
+
+def test_families_filter_repeated_or_comma_separated(client, small_assessment):
+    _push(client, small_assessment)
+    url = f"/api/assessments/{small_assessment.uuid}/distributions"
+    assert client.get(url, params={"families": "tree"}).json()["selected"] == ["tree"]
+    assert client.get(url + "?families=tree,logistic").json()["selected"] == ["logistic", "tree"]
+    assert client.get(url + "?families=tree&families=logistic").json()["selected"] == ["logistic", "tree"]
+    body = client.get(url, params={"families": "tree"}).json()
+    assert [g["family"] for g in body["family_groups"]] == ["tree"]
+    refused = client.get(url, params={"families": "forest"})
+    assert refused.status_code == 422
+    assert "forest" in refused.json()["detail"] and "logistic" in refused.json()["detail"]
+
+
+def test_page_shows_the_table_in_family_colours(client, small_assessment):
+    _push(client, small_assessment)
+    uuid = small_assessment.uuid
+    body = client.get(f"/api/assessments/{uuid}/distributions").json()
+    page = client.get(f"/assessments/{uuid}/distributions").text
+    table = page.split('id="family-estimates"')[1].split("</table>")[0]
+    for group in body["family_groups"]:
+        summary = group["summary"]
+        assert f"{summary['mean']:.3f}" in table
+        assert f"{summary['ci_low']:.3f} – {summary['ci_high']:.3f}" in table
+        assert f"background: {body['colours'][group['family']]}" in table
+    figure = _figure(page, "distributions")
+    assert [trace["marker"]["color"] for trace in figure["data"]] == [
+        body["colours"][g["family"]] for g in body["family_groups"]]
+
+
+def test_without_refit_all_the_configuration_view_says_why(client, winners_only):
+    _push(client, winners_only)
+    uuid = winners_only.uuid
+    body = client.get(f"/api/assessments/{uuid}/distributions", params={"by": "config"}).json()
+    assert body["by"] == "family" and body["config_groups"] == []
+    assert "refit_all" in body["message"]
+    page = client.get(f"/assessments/{uuid}/distributions", params={"by": "config"}).text
+    assert 'id="view-message"' in page and 'id="config-estimates"' not in page
