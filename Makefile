@@ -6,7 +6,7 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 DEMO_DB ?= .foldwise/demo.db
 
-.PHONY: demo test lint unit browser-deps bench clean
+.PHONY: demo test lint unit browser-deps pg-start pg-stop bench clean
 
 $(VENV)/.installed-test: pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -34,8 +34,18 @@ browser-deps:
 lint: $(VENV)/.installed-test
 	$(PY) -m ruff check app tests demo_data
 
+# The store's tests run against PostgreSQL too, in a throwaway cluster in .foldwise/pg that lives as long
+# as the suite: always under CI or FOLDWISE_PG=1 (installed from Debian's packages when missing), otherwise
+# when initdb is at hand; without one those tests skip and say why.
 unit: $(VENV)/.installed-test
-	$(PY) -m pytest
+	bash .ci/postgres.sh with $(PY) -m pytest
+
+# The same cluster by hand: pg-start writes its URL to .foldwise/pg/url.
+pg-start:
+	bash .ci/postgres.sh start
+
+pg-stop:
+	bash .ci/postgres.sh stop
 
 test: browser-deps lint unit
 

@@ -1,4 +1,8 @@
-"""Where the store lives and how to open it: URLs, the engine with its SQLite settings, migrations."""
+"""Where the store lives and how to open it: URLs, the engine with its SQLite settings, migrations.
+
+SQLite (a file, the default) and PostgreSQL (``postgresql+psycopg://...``, the ``postgres`` extra) are
+the backends the tests run on.
+"""
 
 from __future__ import annotations
 
@@ -8,12 +12,13 @@ from pathlib import Path
 
 from alembic import command
 from alembic.config import Config
-from sqlalchemy import Connection, Engine, create_engine, event
+from sqlalchemy import Connection, Engine, create_engine, event, func, make_url, select
 
 _MIGRATIONS = Path(__file__).parent / "migrations"
 # busy_timeout first, so that switching a fresh file to WAL waits for a concurrent opener instead of failing.
 _SQLITE_PRAGMAS = ("busy_timeout=30000", "journal_mode=WAL", "foreign_keys=ON", "synchronous=NORMAL")
 _WRITE_LOCK = "foldwise_write_lock"
+_MIGRATION_LOCK = 0x666F6C6477697365  # "foldwise" in ASCII: the key of PostgreSQL's advisory lock
 
 
 def db_url_from(value: str) -> str:
@@ -46,13 +51,23 @@ def make_engine(url: str) -> Engine:
 
     On SQLite every connection gets WAL journaling (readers never wait for the writer), foreign keys
     (for the cascades), a 30 s busy timeout and ``synchronous=NORMAL``; SQLAlchemy then emits BEGIN
-    itself, so a transaction covers reads and DDL too. Safe to call again on a migrated store.
+    itself, so a transaction covers reads and DDL too. On PostgreSQL the upgrade holds an advisory lock,
+    so engines opening a fresh database at once queue as they do on SQLite (Alembic's own state is not
+    safe to share between threads either). Safe to call again on a migrated store.
     """
-    engine = create_engine(url)
+    try:
+        engine = create_engine(url)
+    except ModuleNotFoundError as error:
+        raise ModuleNotFoundError(
+            f"the store {make_url(url).render_as_string(hide_password=True)} needs the database driver "
+            f"{error.name!r}, which is not installed; for PostgreSQL use a postgresql+psycopg:// URL and "
+            f"pip install 'foldwise[postgres]'", name=error.name) from error
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _prepare_sqlite_connection)
         event.listen(engine, "begin", _begin_sqlite_transaction)
     with write_transaction(engine) as connection:
+        if engine.dialect.name == "postgresql":
+            connection.execute(select(func.pg_advisory_xact_lock(_MIGRATION_LOCK)))
         config = Config()
         config.set_main_option("script_location", str(_MIGRATIONS).replace("%", "%%"))
         config.attributes["connection"] = connection
@@ -62,10 +77,11 @@ def make_engine(url: str) -> Engine:
 
 @contextmanager
 def write_transaction(engine: Engine) -> Iterator[Connection]:
-    """A connection in a transaction that commits on success and holds the write lock from its start.
+    """A connection in a transaction that commits on success, on SQLite holding the write lock from its start.
 
-    On SQLite the transaction begins IMMEDIATE, so two writers queue (within the busy timeout) instead
-    of one failing when it turns from reading to writing.
+    There the transaction begins IMMEDIATE, so two writers queue (within the busy timeout) instead
+    of one failing when it turns from reading to writing. PostgreSQL needs no such lock: its row locks
+    and unique constraints let writers run side by side.
     """
     with engine.connect() as connection:
         connection.execution_options(**{_WRITE_LOCK: True})

@@ -1,4 +1,5 @@
-"""Payloads built by hand for the store tests, and a fresh store on a real SQLite file per test.
+"""Payloads built by hand for the store tests, and a fresh store per test on each backend: a real SQLite
+file, and a new database on a real PostgreSQL server (``FOLDWISE_TEST_PG_URL``; ``make test`` starts one).
 
 The scores are invented (seeded random numbers), shaped like a small classification run: two
 families, four configurations, 2 repeats × 3 outer folds × 2 inner folds, two metrics, one failed
@@ -7,11 +8,13 @@ inner fit, one failed outer fit and predicted probabilities for every configurat
 
 from __future__ import annotations
 
+import os
 from datetime import datetime, timedelta, timezone
 from uuid import uuid4
 
 import numpy as np
 import pytest
+from sqlalchemy import create_engine, make_url
 
 from foldwise.payload import (
     AssessmentPayload,
@@ -138,8 +141,51 @@ def db_path(tmp_path):
     return tmp_path / "store" / "foldwise.db"
 
 
+PG_URL_VARIABLE = "FOLDWISE_TEST_PG_URL"
+PG_UNAVAILABLE = f"PostgreSQL not available: set {PG_URL_VARIABLE} (make test starts one)"
+
+
+@pytest.fixture(scope="session")
+def postgres_server():
+    """An AUTOCOMMIT engine on the server's database, for creating and dropping test databases.
+
+    Skips when no server is named, except under CI, where the PostgreSQL tests must run.
+    """
+    url = os.environ.get(PG_URL_VARIABLE)
+    if not url:
+        if os.environ.get("CI"):
+            pytest.fail(f"{PG_UNAVAILABLE}; under CI these tests must run, not skip", pytrace=False)
+        pytest.skip(PG_UNAVAILABLE)
+    server = create_engine(url, isolation_level="AUTOCOMMIT")
+    yield server
+    server.dispose()
+
+
+@pytest.fixture(params=["sqlite", "postgresql"])
+def store_url(request, db_path):
+    """The URL of a fresh, empty store: a SQLite file under tmp_path, or a new PostgreSQL database."""
+    if request.param == "sqlite":
+        yield db_url_from(str(db_path))
+        return
+    server = request.getfixturevalue("postgres_server")
+    name = f"foldwise_test_{uuid4().hex}"
+    with server.connect() as connection:
+        connection.exec_driver_sql(f'CREATE DATABASE "{name}"')
+    yield make_url(server.url).set(database=name).render_as_string(hide_password=False)
+    with server.connect() as connection:
+        connection.exec_driver_sql(f'DROP DATABASE "{name}" WITH (FORCE)')
+
+
 @pytest.fixture
-def engine(db_path):
+def engine(store_url):
+    engine = make_engine(store_url)
+    yield engine
+    engine.dispose()
+
+
+@pytest.fixture
+def sqlite_engine(db_path):
+    """A store on a SQLite file, for what only SQLite has: its pragmas, its file read by Python's sqlite3."""
     engine = make_engine(db_url_from(str(db_path)))
     yield engine
     engine.dispose()
