@@ -2,7 +2,7 @@
 
 __version__ = "0.1.0"
 
-__all__ = ["Assessment", "Recorder", "nested_cv"]
+__all__ = ["Assessment", "Recorder", "build_ensemble", "nested_cv"]
 
 
 def __getattr__(name):
@@ -15,6 +15,10 @@ def __getattr__(name):
         from foldwise.runner.recorder import Recorder
 
         return Recorder
+    if name == "build_ensemble":
+        from foldwise.ensemble import build_ensemble
+
+        return build_ensemble
     if name == "Assessment":
         from foldwise.assessment import Assessment
 

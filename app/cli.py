@@ -6,6 +6,8 @@ import argparse
 import sys
 import time
 
+from sqlalchemy.engine import make_url
+
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(prog="foldwise", description=__doc__)
@@ -27,8 +29,28 @@ def main(argv: list[str] | None = None) -> int:
     listing = commands.add_parser("list", help="list the assessments in a store")
     listing.add_argument("--db", help="path or SQLAlchemy URL (default: $FOLDWISE_DB)")
 
+    keys = commands.add_parser("keys", help="show, list, create and revoke access keys")
+    keys.add_argument("action", choices=["show", "list", "create", "revoke"])
+    keys.add_argument("key_id", nargs="?", help="with revoke: the id shown by `foldwise keys list`")
+    keys.add_argument("--read", action="store_true", help="with create: a read key (default: a write key)")
+    keys.add_argument("--label", default="", help="with create: what the key is for")
+
+    share = commands.add_parser("share", help="print a link that lets a teammate see a page")
+    share.add_argument("path", nargs="?", default="/", help="the page, e.g. /assessments/<uuid>?metric=roc_auc")
+    share.add_argument("--host", help="the address teammates reach the server at (default 127.0.0.1)")
+    share.add_argument("--port", type=int)
+
+    backup = commands.add_parser("backup", help="copy a SQLite store consistently, even while it is served")
+    backup.add_argument("dest", help="new file to write")
+    backup.add_argument("--db")
+
+    check = commands.add_parser("check", help="integrity check and row counts of a store")
+    check.add_argument("--db")
+
     args = parser.parse_args(argv)
-    return {"serve": _serve, "demo": _demo, "resend": _resend, "list": _list}[args.command](args)
+    handlers = {"serve": _serve, "demo": _demo, "resend": _resend, "list": _list, "keys": _keys, "share": _share,
+                "backup": _backup, "check": _check}
+    return handlers[args.command](args)
 
 
 def _server_options(parser: argparse.ArgumentParser) -> None:
@@ -36,22 +58,34 @@ def _server_options(parser: argparse.ArgumentParser) -> None:
                                      "~/.local/share/foldwise/foldwise.db)")
     parser.add_argument("--host", help="address to bind (default 127.0.0.1: this machine only)")
     parser.add_argument("--port", type=int, help="port (default 8000)")
+    parser.add_argument("--require-read-key", action="store_true", default=None,
+                        help="answer reads only with a key (always so on an address other than loopback)")
 
 
 def _settings(args):
     from foldwise.settings import Settings
 
-    return Settings.from_env(db_url=args.db, host=getattr(args, "host", None), port=getattr(args, "port", None))
+    return Settings.from_env(db_url=getattr(args, "db", None), host=getattr(args, "host", None),
+                             port=getattr(args, "port", None), require_read_key=getattr(args, "require_read_key", None))
 
 
 def _serve(args) -> int:
     import uvicorn
 
+    from foldwise.keys import KeyFile
     from foldwise.web.app import create_app
 
     settings = _settings(args)
-    app = create_app(settings)
-    print(f"foldwise dashboard: http://{settings.host}:{settings.port}  (store: {settings.db_url})", flush=True)
+    try:
+        app = create_app(settings)
+    except PermissionError as refusal:
+        print(f"foldwise: {refusal}", file=sys.stderr)
+        return 2
+    write_key = KeyFile(settings.keys_path()).ensure_write_key()
+    store = make_url(settings.db_url).render_as_string(hide_password=True)
+    print(f"foldwise dashboard: http://{settings.host}:{settings.port}/?key={write_key.secret}\n"
+          f"  (this link carries your write key: keep it to yourself; `foldwise share` makes links for teammates)\n"
+          f"  store: {store}", flush=True)
     uvicorn.run(app, host=settings.host, port=settings.port, log_level="warning")
     return 0
 
@@ -83,6 +117,68 @@ def _resend(args) -> int:
     if not outcomes:
         print("nothing spooled")
     return 0 if all(outcome in ("created", "already stored") for _, outcome in outcomes) else 1
+
+
+def _keys(args) -> int:
+    from foldwise.keys import KeyFile
+
+    keys = KeyFile(_settings(args).keys_path())
+    if args.action == "show":
+        print(keys.ensure_write_key().secret)
+    elif args.action == "create":
+        key = keys.create("read" if args.read else "write", label=args.label)
+        print(f"{key.kind} key {key.id}: {key.secret}")
+    elif args.action == "revoke":
+        if not args.key_id:
+            print("foldwise keys revoke needs a key id (see `foldwise keys list`)", file=sys.stderr)
+            return 2
+        try:
+            print(f"revoked {keys.revoke(args.key_id).id}")
+        except KeyError as error:
+            print(f"foldwise: {error.args[0]}", file=sys.stderr)
+            return 2
+    else:
+        for key in keys.all():
+            state = "active" if key.active else f"revoked {key.revoked_at}"
+            print(f"{key.id}  {key.kind:5}  {state:28}  created {key.created_at}  {key.label}")
+    return 0
+
+
+def _share(args) -> int:
+    from foldwise.keys import KeyFile
+    from foldwise.web.sharing import share_link
+
+    settings = _settings(args)
+    print(share_link(KeyFile(settings.keys_path()), f"http://{settings.host}:{settings.port}", args.path))
+    return 0
+
+
+def _backup(args) -> int:
+    from foldwise.store import make_engine
+    from foldwise.store.maintenance import backup_to
+
+    engine = make_engine(_settings(args).db_url)
+    try:
+        print(f"backed up to {backup_to(engine, args.dest)}")
+    except (ValueError, FileExistsError) as error:
+        print(f"foldwise: {error}", file=sys.stderr)
+        return 2
+    finally:
+        engine.dispose()
+    return 0
+
+
+def _check(args) -> int:
+    from foldwise.store import make_engine
+    from foldwise.store.maintenance import check_store
+
+    engine = make_engine(_settings(args).db_url)
+    report = check_store(engine)
+    engine.dispose()
+    print(f"integrity: {report.integrity}")
+    for table, count in report.counts.items():
+        print(f"{table:24} {count:>12,}")
+    return 0 if report.ok else 1
 
 
 def _list(args) -> int:

@@ -14,8 +14,9 @@ from pathlib import Path
 
 import httpx
 
+from foldwise.keys import KeyFile
 from foldwise.payload import AssessmentPayload
-from foldwise.settings import spool_dir_from
+from foldwise.settings import config_dir_from, spool_dir_from
 
 CREATED, STORED, SPOOLED = "created", "already stored", "spooled"
 
@@ -41,7 +42,8 @@ def save(payload: AssessmentPayload, target: str) -> bool:
 
 def push(payload: AssessmentPayload, url: str, *, token: str | None = None, retries: int = 3,
          backoff: float = 0.5, timeout: float = 60.0, spool_dir: str | Path | None = None) -> str:
-    """POST the assessment to a foldwise server at ``url``.
+    """POST the assessment to a foldwise server at ``url`` with a write key (``token``, else ``$FOLDWISE_KEY``,
+    else the key file of this machine).
 
     Returns ``"created"``, ``"already stored"`` or, when the server could not be reached after
     ``retries`` attempts, ``"spooled"`` (with a warning naming the spool file).
@@ -81,7 +83,7 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
 
 def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
     headers = {"content-type": "application/json"}
-    token = token or os.environ.get("FOLDWISE_TOKEN")
+    token = token or _write_key()
     if token:
         headers["authorization"] = f"Bearer {token}"
     endpoint = url.rstrip("/") + "/api/assessments"
@@ -102,6 +104,14 @@ def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
             raise httpx.TransportError(f"server error {response.status_code}")
         raise PushRejected(response.status_code, _detail(response))
     raise ValueError(f"retries must be at least 1, got {retries}")
+
+
+def _write_key() -> str | None:
+    """$FOLDWISE_KEY, else the write key in this machine's key file (a server on this machine made it)."""
+    if os.environ.get("FOLDWISE_KEY"):
+        return os.environ["FOLDWISE_KEY"]
+    keys = KeyFile(config_dir_from(os.environ) / "keys.json").active("write")
+    return keys[0].secret if keys else None
 
 
 def _detail(response: httpx.Response):

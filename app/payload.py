@@ -3,7 +3,8 @@
 Scores travel as columns (one list per field) with configurations and metrics referred to by their
 position, so an assessment of hundreds of thousands of inner scores stays a compact JSON document.
 Outer-test predictions travel as base64 of little-endian float64, one block per (outer fold,
-configuration).
+configuration). Estimators travel as base64 of skops files (``skops.io.dumps``), which a loader can
+refuse type by type.
 """
 
 from __future__ import annotations
@@ -34,6 +35,8 @@ class Family(_Strict):
     name: str = Field(min_length=1, max_length=200)
     estimator: str = Field(default="", max_length=20_000, description="repr of the unfitted estimator")
     estimator_class: str = Field(default="", max_length=500, description="import path of its class")
+    estimator_skops: str | None = Field(default=None, description="base64 of skops.io.dumps of the unfitted "
+                                                                   "estimator, as the runner saw it")
 
 
 class Configuration(_Strict):
@@ -134,6 +137,15 @@ class Prediction(_Strict):
         return cls(n_columns=values.shape[1], data=data, **fields)
 
 
+class FittedModel(_Strict):
+    """A fold winner as fitted on its outer training set (kept when the run asked for it)."""
+
+    repeat: int = Field(ge=0)
+    outer_fold: int = Field(ge=0)
+    config: int = Field(ge=0)
+    skops: str = Field(min_length=1, description="base64 of skops.io.dumps of the fitted estimator")
+
+
 class Failure(_Strict):
     level: Literal["inner", "outer"]
     repeat: int = Field(ge=0)
@@ -161,6 +173,7 @@ class AssessmentPayload(_Strict):
     overall_winners: list[FoldChoice]
     predictions: list[Prediction] = Field(default_factory=list)
     failures: list[Failure] = Field(default_factory=list)
+    models: list[FittedModel] = Field(default_factory=list, description="fitted family winners, if kept")
     versions: dict[str, str] = Field(default_factory=dict)
     seeds: dict[str, Any] = Field(default_factory=dict)
     total_fit_time: float = Field(default=0.0, ge=0)
@@ -252,6 +265,19 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     for position, failure in enumerate(payload.failures):
         _check_reference(f"failures[{position}]", failure, folds, n_configs)
 
+    for position, family in enumerate(payload.families):
+        if family.estimator_skops is not None:
+            _check_base64(f"families[{position}].estimator_skops", family.estimator_skops)
+    kept = set()
+    for position, model in enumerate(payload.models):
+        where = f"models[{position}]"
+        _check_reference(where, model, folds, n_configs)
+        _check_base64(f"{where}.skops", model.skops)
+        if (model.repeat, model.outer_fold, model.config) in kept:
+            raise ValueError(f"{where}: repeat {model.repeat}, outer fold {model.outer_fold}, config "
+                             f"{model.config} appears twice")
+        kept.add((model.repeat, model.outer_fold, model.config))
+
 
 def _refuse_duplicates(where: str, names: list[str]) -> None:
     seen = set()
@@ -266,6 +292,13 @@ def _check_reference(where: str, item, folds: dict, n_configs: int) -> None:
         raise ValueError(f"{where}: repeat {item.repeat}, outer fold {item.outer_fold} is not in outer_folds")
     if item.config >= n_configs:
         raise ValueError(f"{where}.config: {item.config} is out of range (0..{n_configs - 1})")
+
+
+def _check_base64(where: str, text: str) -> None:
+    try:
+        base64.b64decode(text, validate=True)
+    except ValueError:
+        raise ValueError(f"{where}: not base64 text (received {text[:40]!r}...)") from None
 
 
 def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) -> None:

@@ -7,6 +7,7 @@ import socket
 import subprocess
 import sys
 import time
+from contextlib import contextmanager
 from pathlib import Path
 
 import httpx
@@ -19,6 +20,7 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier
 
 import foldwise
+from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.web.app import create_app
 
@@ -43,9 +45,22 @@ def db_path(tmp_path) -> Path:
 
 
 @pytest.fixture
-def client(db_path):
-    app = create_app(Settings(db_url=f"sqlite:///{db_path}"))
-    with TestClient(app) as test_client:
+def open_client(tmp_path):
+    """Opens a TestClient around the store at a URL, sending the app's write key as the push client would."""
+
+    @contextmanager
+    def opening(db_url: str):
+        app = create_app(Settings(db_url=db_url, config_dir=tmp_path / "config"))
+        with TestClient(app) as test_client:
+            test_client.headers["authorization"] = f"Bearer {app.state.keys.ensure_write_key().secret}"
+            yield test_client
+
+    return opening
+
+
+@pytest.fixture
+def client(db_path, open_client):
+    with open_client(f"sqlite:///{db_path}") as test_client:
         yield test_client
 
 
@@ -58,15 +73,17 @@ def free_port() -> int:
 class LiveServer:
     """`foldwise serve` in its own process on loopback, as a person would start it."""
 
-    def __init__(self, db_path: Path, log_path: Path):
+    def __init__(self, db_path: Path, log_path: Path, *extra: str):
         self.port = free_port()
         self.url = f"http://127.0.0.1:{self.port}"
-        self.db_path = db_path
+        self.db_path, self.config_dir = db_path, db_path.parent / "config"
         self._log = open(log_path, "w")
         self.process = subprocess.Popen(
-            [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(db_path), "--port", str(self.port)],
-            stdout=self._log, stderr=subprocess.STDOUT, env={**os.environ, "PYTHONWARNINGS": "ignore"})
+            [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(db_path), "--port", str(self.port), *extra],
+            stdout=self._log, stderr=subprocess.STDOUT,
+            env={**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_CONFIG": str(self.config_dir)})
         self._wait()
+        self.write_key = KeyFile(self.config_dir / "keys.json").ensure_write_key().secret
 
     def _wait(self, timeout: float = 30.0) -> None:
         deadline = time.monotonic() + timeout
@@ -96,7 +113,14 @@ def unused_port() -> int:
 
 @pytest.fixture(scope="session")
 def live_server(tmp_path_factory):
+    """One real server for the session; the push client finds its write key in FOLDWISE_KEY."""
     folder = tmp_path_factory.mktemp("live")
     server = LiveServer(folder / "live.db", folder / "server.log")
+    previous = os.environ.get("FOLDWISE_KEY")
+    os.environ["FOLDWISE_KEY"] = server.write_key
     yield server
     server.stop()
+    if previous is None:
+        os.environ.pop("FOLDWISE_KEY", None)
+    else:
+        os.environ["FOLDWISE_KEY"] = previous

@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import base64
 import platform
+import warnings
 from importlib.metadata import PackageNotFoundError, version
 
 import numpy as np
+import skops.io
 
 from foldwise.payload import (
     AssessmentPayload,
@@ -13,6 +16,7 @@ from foldwise.payload import (
     Design,
     Failure,
     Family,
+    FittedModel,
     FoldChoice,
     InnerScores,
     OuterFold,
@@ -31,7 +35,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
                   results: dict[tuple, FitResult], choices, refit_all, n_features, grouped) -> AssessmentPayload:
     splits, targets = layout.splits, np.asarray(y)
     inner, outer = _columns(metrics, True), _columns(metrics, False)
-    predictions, failures = [], []
+    predictions, failures, models = [], [], []
     for key in sorted(results):
         result = results[key]
         split = splits[key[1]]
@@ -43,6 +47,9 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             if result.prediction is not None:
                 kind, values = result.prediction
                 predictions.append(Prediction.from_array(values, kind=kind, **where))
+            text = None if result.model is None else _skops_text(result.model, "a fitted fold winner")
+            if text is not None:
+                models.append(FittedModel(skops=text, **where))
         if result.error:
             failures.append(Failure(level=key[0], inner_fold=key[2] if key[0] == "inner" else None,
                                     message=result.error, **where))
@@ -62,7 +69,8 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             inner_splitter=layout.inner_splitter, grouped=grouped, refit_all=refit_all, metrics=metrics,
             classes=classes),
         families=[Family(name=family, estimator=repr(estimator),
-                         estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}")
+                         estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}",
+                         estimator_skops=_skops_text(estimator, f"family {family!r}'s estimator"))
                   for family, estimator in space.estimators.items()],
         configurations=[Configuration(id=c.id, family=c.family, params=canonical_params(c.params))
                         for c in space.candidates],
@@ -70,7 +78,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
                                test_indices=s.test.tolist(), y_true=targets[s.test].tolist()) for s in splits],
         inner_scores=InnerScores(**inner), outer_scores=OuterScores(**outer),
         family_winners=family_winners, overall_winners=overall_winners,
-        predictions=predictions, failures=failures,
+        predictions=predictions, failures=failures, models=models,
         versions=package_versions(), seeds=_seeds(space, layout),
         total_fit_time=float(sum(result.fit_time for result in results.values())),
     )
@@ -84,6 +92,16 @@ def package_versions() -> dict[str, str]:
         except PackageNotFoundError:
             pass
     return found
+
+
+def _skops_text(estimator, what: str) -> str | None:
+    """base64 of the skops file of ``estimator``; None, with a warning, when skops cannot write it."""
+    try:
+        return base64.b64encode(skops.io.dumps(estimator)).decode("ascii")
+    except Exception as error:  # skops refuses some objects (open files, lambdas): the run still counts
+        warnings.warn(f"skops could not write {what} ({type(error).__name__}: {error}); it is not kept, so "
+                      f"an ensemble using it must be built from your own space", RuntimeWarning, stacklevel=4)
+        return None
 
 
 def _columns(metrics, inner: bool) -> dict[str, list]:

@@ -18,6 +18,7 @@ class FitTask:
     train: np.ndarray
     test: np.ndarray
     predict: bool = False
+    keep_model: bool = False  # hand the fitted model back (a fold winner whose model the run keeps)
 
 
 @dataclass
@@ -29,6 +30,7 @@ class FitResult:
     cpu_time: float
     prediction: tuple[str, np.ndarray] | None = None
     error: str | None = None
+    model: object | None = None
 
 
 def run_fit(task: FitTask, estimator, params, X, y, scorer, metrics, classes) -> FitResult:
@@ -50,7 +52,8 @@ def run_fit(task: FitTask, estimator, params, X, y, scorer, metrics, classes) ->
         message = "".join(traceback.format_exception_only(error)).strip()[:10_000]
         return FitResult(task.key, dict.fromkeys(metrics, np.nan), fit_time, score_time,
                          time.process_time() - started_cpu, None, message)
-    return FitResult(task.key, scores, fit_time, score_time, time.process_time() - started_cpu, prediction)
+    return FitResult(task.key, scores, fit_time, score_time, time.process_time() - started_cpu, prediction,
+                     model=model if task.keep_model else None)
 
 
 def outer_predictions(model, X_test, classes) -> tuple[str, np.ndarray]:

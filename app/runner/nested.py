@@ -16,6 +16,7 @@ from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
 from foldwise.runner.building import build_payload
+from foldwise.runner.cluster import data_for_workers
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.selection import select_in_fold
 from foldwise.runner.space import Space, space_from
@@ -24,7 +25,8 @@ from foldwise.runner.whole_search import nested_whole_search
 
 
 def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
-              name=None, dataset=None, refit_all=True, keep_predictions=True) -> Assessment:
+              name=None, dataset=None, refit_all=True, keep_predictions=True,
+              keep_models=False) -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
@@ -49,10 +51,18 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         Refit every configuration on every outer training set (default), or only the family winners.
     keep_predictions : bool
         Keep each outer fit's test predictions (float64).
+    keep_models : bool
+        Keep every family winner as fitted on its outer training set (skops files in the payload), so
+        an ensemble of fold winners can be downloaded ready to predict. The outer refits then wait
+        for the inner folds' choices, so that only the winners' models are held.
     """
     _check_lengths(X, y, groups)
     expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
     if isinstance(space, BaseSearchCV) and not expandable:
+        if keep_models:
+            raise ValueError(f"keep_models=True needs a space foldwise expands into configurations; a "
+                             f"{type(space).__name__} is fitted whole on each outer fold, so pass a dict "
+                             f"{{family: (estimator, grid)}} or a GridSearchCV / RandomizedSearchCV")
         return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
                                    progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
@@ -65,22 +75,26 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     layout = lay_out(X, y, groups, outer=outer, inner=inner, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
     scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
-    runner = _Runner(resolved, X, y, scorer, metrics, classes)
+    runner = _Runner(resolved, *data_for_workers(X, y), scorer, metrics, classes)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
     with tqdm(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
             Parallel(n_jobs=n_jobs, return_as="generator_unordered") as pool:
         first = [*_inner_tasks(layout, n_configs)]
-        if refit_all:
+        outer_at_once = refit_all and not keep_models
+        if outer_at_once:
             first += _outer_tasks(layout, range(n_configs), keep_predictions)
         results = runner.run(pool, first, bar)
         choices = _select(layout, resolved, results, metrics[0])
-        if not refit_all:
+        if not outer_at_once:
             wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
-            bar.total = len(first) + len(wanted)
+            pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
+                else sorted(wanted)
+            bar.total = len(first) + len(pairs)
             bar.refresh()
-            results.update(runner.run(pool, _outer_tasks_for(layout, sorted(wanted), keep_predictions), bar))
+            results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions,
+                                                             wanted if keep_models else set()), bar))
 
     _warn_failures(list(results.values()))
     return Assessment(build_payload(
@@ -117,9 +131,9 @@ def _outer_tasks(layout: Layout, configs, predict: bool) -> list[FitTask]:
     return _outer_tasks_for(layout, [(s, c) for s in range(len(layout.splits)) for c in configs], predict)
 
 
-def _outer_tasks_for(layout: Layout, pairs, predict: bool) -> list[FitTask]:
-    return [FitTask(("outer", s, c), c, layout.splits[s].train, layout.splits[s].test, predict)
-            for s, c in pairs]
+def _outer_tasks_for(layout: Layout, pairs, predict: bool, keep=frozenset()) -> list[FitTask]:
+    return [FitTask(("outer", s, c), c, layout.splits[s].train, layout.splits[s].test, predict,
+                    (s, c) in keep) for s, c in pairs]
 
 
 def _select(layout: Layout, space: Space, results: dict, metric: str) -> list[tuple[list, int]]:

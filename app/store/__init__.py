@@ -1,6 +1,19 @@
 """The store: assessments kept in any SQLAlchemy database (SQLite by default), read back as frames."""
 
 from foldwise.store.engine import db_url_from, default_db_url, make_engine
+from foldwise.store.ensembles import (
+    EnsembleRecord,
+    StoredModel,
+    delete_ensemble,
+    ensemble_counts,
+    ensemble_members_for,
+    ensembles_for,
+    family_estimators_for,
+    fitted_model_counts,
+    fitted_models_for,
+    get_ensemble,
+    insert_ensemble,
+)
 from foldwise.store.lookup import AssessmentNotFound
 from foldwise.store.queries import (
     AssessmentRecord,
@@ -18,15 +31,26 @@ from foldwise.store.writes import delete_assessment, insert_assessment
 __all__ = [
     "AssessmentNotFound",
     "AssessmentRecord",
+    "EnsembleRecord",
+    "StoredModel",
     "StoredPrediction",
     "db_url_from",
     "default_db_url",
     "delete_assessment",
+    "delete_ensemble",
+    "ensemble_counts",
+    "ensemble_members_for",
+    "ensembles_for",
     "failures_for",
+    "family_estimators_for",
     "family_winners_for",
+    "fitted_model_counts",
+    "fitted_models_for",
     "get_assessment",
+    "get_ensemble",
     "inner_scores_for",
     "insert_assessment",
+    "insert_ensemble",
     "list_assessments",
     "load_payload",
     "make_engine",

@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import Connection, Engine, Row, Table, and_, select
+from sqlalchemy import Connection, Engine, Row, Table, and_, select, tuple_
 
 from foldwise import frames
 from foldwise.payload import Configuration, Design, Family
@@ -87,20 +87,27 @@ def inner_scores_for(engine: Engine, uuid: str, *, repeat: int | None = None,
         return inner_frame(connection, row, repeat=repeat, outer_fold=outer_fold)
 
 
-def outer_scores_for(engine: Engine, uuid: str) -> pd.DataFrame:
-    """Every outer score (columns ``frames.OUTER_COLUMNS``) in payload order, with fold sizes and winners."""
+def outer_scores_for(engine: Engine, uuid: str, *, metric: str | None = None,
+                     winners: str | None = None) -> pd.DataFrame:
+    """Outer scores (columns ``frames.OUTER_COLUMNS``) in payload order, with fold sizes and winners.
+
+    Every score, or only those of one ``metric`` and, with ``winners="family"`` or ``"overall"``, only
+    the rows of that kind of fold winner.
+    """
     with engine.connect() as connection:
-        return outer_frame(connection, require_assessment(connection, uuid))
+        return outer_frame(connection, require_assessment(connection, uuid), metric=metric, winners=winners)
 
 
-def winners_for(engine: Engine, uuid: str) -> pd.DataFrame:
-    """The overall fold winners, by ``frames.winners_frame`` on the selection metric."""
-    return _winners(engine, uuid, flag="overall_winner")
+def winners_for(engine: Engine, uuid: str, *, metric: str | None = None) -> pd.DataFrame:
+    """The overall fold winners, as ``frames.winners_frame`` gives them, on ``metric`` (default: the
+    selection metric); the inner mean and sd come from the summaries stored with the assessment."""
+    return _winners(engine, uuid, kind="overall", metric=metric)
 
 
-def family_winners_for(engine: Engine, uuid: str) -> pd.DataFrame:
-    """Each family's fold winners, by ``frames.winners_frame`` on the selection metric."""
-    return _winners(engine, uuid, flag="family_winner")
+def family_winners_for(engine: Engine, uuid: str, *, metric: str | None = None) -> pd.DataFrame:
+    """Each family's fold winners, as ``frames.winners_frame`` gives them, on ``metric`` (default: the
+    selection metric); the inner mean and sd come from the summaries stored with the assessment."""
+    return _winners(engine, uuid, kind="family", metric=metric)
 
 
 def failures_for(engine: Engine, uuid: str) -> pd.DataFrame:
@@ -150,12 +157,16 @@ def inner_frame(connection: Connection, row: Row, *, repeat: int | None = None, 
     return _name_configs(connection, row, frame)[frames.INNER_COLUMNS]
 
 
-def outer_frame(connection: Connection, row: Row) -> pd.DataFrame:
+def outer_frame(connection: Connection, row: Row, *, metric: str | None = None,
+                winners: str | None = None) -> pd.DataFrame:
     s, o = tables.outer_scores, tables.outer_folds
+    where = [] if metric is None else [s.c.metric == _metric_position(row, metric)]
+    if winners is not None:
+        where.append(_chosen(s, row, winners))
     query = (select(s.c.repeat, s.c.outer_fold, *_score_columns(s), o.c.n_train, o.c.n_test)
              .join(o, and_(o.c.assessment_id == s.c.assessment_id, o.c.repeat == s.c.repeat,
                            o.c.outer_fold == s.c.outer_fold))
-             .where(s.c.assessment_id == row.id).order_by(s.c.position))
+             .where(s.c.assessment_id == row.id, *where).order_by(s.c.position))
     frame = pd.read_sql(query, connection, dtype={"repeat": "int64", "outer_fold": "int64",
                                                   "n_train": "int64", "n_test": "int64"} | _SCORES)
     keys = pd.MultiIndex.from_arrays([frame["repeat"], frame["outer_fold"], frame["config"]])
@@ -168,12 +179,48 @@ def outer_frame(connection: Connection, row: Row) -> pd.DataFrame:
     return _name_configs(connection, row, frame)[frames.OUTER_COLUMNS]
 
 
-def _winners(engine: Engine, uuid: str, *, flag: str) -> pd.DataFrame:
+def _winners(engine: Engine, uuid: str, *, kind: str, metric: str | None) -> pd.DataFrame:
+    """``frames.winners_frame`` without reading the inner scores: the chosen outer scores in payload
+    order beside the stored inner summaries of the same fold, configuration and metric."""
+    o, summary = tables.outer_scores, tables.inner_summaries
     with engine.connect() as connection:
         row = require_assessment(connection, uuid)
-        inner = inner_frame(connection, row, metric=0)  # the selection metric's rows are all it reads
-        outer = outer_frame(connection, row)
-    return frames.winners_frame(inner, outer, row.selection_metric, flag=flag)
+        same = [summary.c[name] == o.c[name] for name in ("assessment_id", "repeat", "outer_fold", "config",
+                                                          "metric")]
+        query = (select(o.c.repeat, o.c.outer_fold, o.c.config, o.c.metric, summary.c.inner_mean,
+                        summary.c.inner_std, o.c.score.label("outer_score"))
+                 .outerjoin(summary, and_(*same))
+                 .where(o.c.assessment_id == row.id, o.c.metric == _metric_position(row, metric),
+                        _chosen(o, row, kind))
+                 .order_by(o.c.position))
+        frame = pd.read_sql(query, connection, dtype={"repeat": "int64", "outer_fold": "int64",
+                                                      "inner_mean": "float64", "inner_std": "float64",
+                                                      "outer_score": "float64"})
+        frame = _name_configs(connection, row, frame)
+    frame["optimism"] = frame["inner_mean"] - frame["outer_score"]
+    order = ["repeat", "outer_fold"] if kind == "overall" else ["repeat", "outer_fold", "family"]
+    return frame.sort_values(order, kind="stable").reset_index(drop=True)[frames.WINNER_COLUMNS]
+
+
+def _chosen(table: Table, row: Row, kind: str):
+    """Rows of ``table`` whose (repeat, outer_fold, config) is a fold winner of ``kind``."""
+    if kind not in ("family", "overall"):
+        raise ValueError(f"winners must be 'family' or 'overall' (or None for every row); received {kind!r}")
+    ch = tables.fold_choices
+    chosen = select(ch.c.repeat, ch.c.outer_fold, ch.c.config).where(ch.c.assessment_id == row.id,
+                                                                      ch.c.kind == kind)
+    return tuple_(table.c.repeat, table.c.outer_fold, table.c.config).in_(chosen)
+
+
+def _metric_position(row: Row, metric: str | None) -> int:
+    """The position of ``metric`` in the design's metrics; the selection metric's (0) when None."""
+    metrics = row.design["metrics"]
+    if metric is None:
+        return 0
+    if metric not in metrics:
+        raise ValueError(f"metric {metric!r} was not recorded in assessment {row.uuid}; choose one of "
+                         f"{metrics}")
+    return metrics.index(metric)
 
 
 def _score_columns(table: Table) -> list:

@@ -11,6 +11,8 @@ from sqlalchemy import Connection, Engine, Row, Table, and_, select
 from foldwise.payload import (
     AssessmentPayload,
     Failure,
+    Family,
+    FittedModel,
     FoldChoice,
     InnerScores,
     OuterFold,
@@ -65,7 +67,7 @@ def load_payload(engine: Engine, uuid: str) -> AssessmentPayload | None:
 
 def _payload(connection: Connection, row: Row) -> AssessmentPayload:
     record = record_from(connection, row)
-    ch, p, f = tables.fold_choices, tables.predictions, tables.failures
+    ch, p, f, m = tables.fold_choices, tables.predictions, tables.failures, tables.fitted_models
 
     def rows(table: Table, names: list[str], *where) -> list[Row]:
         return _rows(connection, table, row.id, names, *where)
@@ -76,7 +78,7 @@ def _payload(connection: Connection, row: Row) -> AssessmentPayload:
 
     return AssessmentPayload(
         schema_version=row.schema_version, uuid=row.uuid, name=row.name, dataset=row.dataset,
-        created_at=record.created_at, design=record.design, families=record.families,
+        created_at=record.created_at, design=record.design, families=_families(connection, row.id),
         configurations=record.configurations, outer_folds=_outer_folds(connection, row.id),
         inner_scores=InnerScores(**_columns(connection, tables.inner_scores, row.id)),
         outer_scores=OuterScores(**_columns(connection, tables.outer_scores, row.id)),
@@ -85,7 +87,19 @@ def _payload(connection: Connection, row: Row) -> AssessmentPayload:
                                 data=base64.b64encode(data).decode("ascii"))
                      for r, o, c, kind, n_columns, data in rows(p, tables.payload_fields(p))],
         failures=[Failure(**failure._mapping) for failure in rows(f, tables.payload_fields(f))],
+        models=[FittedModel(repeat=r, outer_fold=o, config=c, skops=_text(data))
+                for r, o, c, data in rows(m, tables.payload_fields(m))],
         versions=row.versions, seeds=row.seeds, total_fit_time=row.total_fit_time)
+
+
+def _families(connection: Connection, assessment_id: int) -> list[Family]:
+    names = tables.payload_fields(tables.families)
+    return [Family(**dict(family._mapping, estimator_skops=_text(family.estimator_skops)))
+            for family in _rows(connection, tables.families, assessment_id, names)]
+
+
+def _text(data: bytes | None) -> str | None:
+    return None if data is None else base64.b64encode(data).decode("ascii")
 
 
 def _outer_folds(connection: Connection, assessment_id: int) -> list[OuterFold]:

@@ -77,6 +77,7 @@ families = _child(
     Column("name", String(200), nullable=False),
     Column("estimator", Text, nullable=False),
     Column("estimator_class", String(500), nullable=False),
+    Column("estimator_skops", LargeBinary, comment="skops file of the unfitted estimator; null if not kept"),
 )
 
 configurations = _child(
@@ -120,6 +121,19 @@ outer_scores = _child(
     Index(None, "assessment_id", "repeat", "outer_fold"),
 )
 
+# Derived from the inner scores as an assessment is stored (summaries.py), so that pages showing fold
+# winners need not read every inner score. Not part of the payload, so it has no position.
+inner_summaries = Table(
+    "inner_summaries", metadata, _owner(),
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("config", Integer, nullable=False),
+    Column("metric", Integer, nullable=False),
+    Column("inner_mean", Double, comment="mean of the inner scores, failed fits left out"),
+    Column("inner_std", Double, comment="population sd of the inner scores; null when any fit failed"),
+    PrimaryKeyConstraint("assessment_id", "repeat", "outer_fold", "config", "metric"),
+)
+
 fold_choices = _child(
     "fold_choices",
     Column("kind", String(10), nullable=False, comment="'family' or 'overall' winner"),
@@ -149,6 +163,36 @@ failures = _child(
     Column("message", Text, nullable=False),
 )
 
+fitted_models = _child(
+    "fitted_models",
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("config", Integer, nullable=False),
+    Column("skops", LargeBinary, nullable=False, comment="skops file of the fitted fold winner"),
+)
+
+# Ensembles are the store's own records, made after the assessment: not part of its payload.
+ensembles = Table(
+    "ensembles", metadata,
+    Column("id", String(36), primary_key=True, comment="uuid4"),
+    Column("assessment_id", Integer, ForeignKey("assessments.id", ondelete="CASCADE"), nullable=False,
+           index=True),
+    Column("name", String(200), nullable=False),
+    Column("note", Text, nullable=False),
+    Column("created_at", DateTime(timezone=False), nullable=False, comment="UTC"),
+    Column("voting", String(10), nullable=False, comment="'soft', 'hard' or 'mean'"),
+    Column("metric", Text, nullable=False, comment="the metric of the estimate below"),
+    Column("estimate_mean", Double),
+    Column("estimate_sd", Double),
+)
+
+ensemble_members = Table(
+    "ensemble_members", metadata,
+    Column("ensemble_id", String(36), ForeignKey("ensembles.id", ondelete="CASCADE"), nullable=False),
+    Column("position", Integer, nullable=False),
+    Column("config", Integer, nullable=False, comment="position in the assessment's configurations"),
+    PrimaryKeyConstraint("ensemble_id", "position"),
+)
 
 
 def payload_fields(table: Table) -> list[str]:

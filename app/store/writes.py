@@ -10,13 +10,14 @@ from itertools import islice, repeat
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import Connection, Double, Engine, Integer, Table, delete, insert, select
+from sqlalchemy import Connection, Double, Engine, Integer, LargeBinary, String, Table, delete, insert, select
 from sqlalchemy.exc import IntegrityError
 
 from foldwise.payload import AssessmentPayload
 from foldwise.store import tables
 from foldwise.store.engine import write_transaction
 from foldwise.store.lookup import uuid_text
+from foldwise.store.summaries import inner_summary_columns
 
 _CHUNK = 20_000  # rows per executemany: bounded memory for an assessment of any size
 
@@ -97,7 +98,8 @@ def _insert_children(connection: Connection, assessment_id: int, payload: Assess
     def put(table: Table, columns: dict[str, Sequence]) -> None:
         _insert_columns(connection, table, assessment_id, columns)
 
-    put(tables.families, _fields(payload.families, ["name", "estimator", "estimator_class"]))
+    put(tables.families, _fields(payload.families, ["name", "estimator", "estimator_class"])
+        | {"estimator_skops": [_bytes_or_none(f.estimator_skops) for f in payload.families]})
     put(tables.configurations, _fields(payload.configurations, ["family", "params"])
         | {"config_id": [c.id for c in payload.configurations]})
     folds = payload.outer_folds
@@ -107,13 +109,23 @@ def _insert_children(connection: Connection, assessment_id: int, payload: Assess
     for table, block in ((tables.inner_scores, payload.inner_scores),
                          (tables.outer_scores, payload.outer_scores)):
         put(table, {name: getattr(block, name) for name in tables.payload_fields(table)})
+    inner = payload.inner_scores
+    summaries = inner_summary_columns(inner.repeat, inner.outer_fold, inner.config, inner.metric, inner.score)
+    _insert_plain(connection, tables.inner_summaries,
+                  {"assessment_id": repeat(assessment_id, len(summaries["repeat"]))} | summaries)
     for kind, choices in (("family", payload.family_winners), ("overall", payload.overall_winners)):
         put(tables.fold_choices, _fields(choices, ["repeat", "outer_fold", "config"])
             | {"kind": [kind] * len(choices)})
     predictions = payload.predictions
     put(tables.predictions, _fields(predictions, ["repeat", "outer_fold", "config", "kind", "n_columns"])
         | {"data": [base64.b64decode(p.data) for p in predictions]})
+    put(tables.fitted_models, _fields(payload.models, ["repeat", "outer_fold", "config"])
+        | {"skops": [base64.b64decode(m.skops) for m in payload.models]})
     put(tables.failures, _fields(payload.failures, tables.payload_fields(tables.failures)))
+
+
+def _bytes_or_none(text: str | None) -> bytes | None:
+    return None if text is None else base64.b64decode(text)
 
 
 def _fields(items: Sequence, names: list[str]) -> dict[str, list]:
@@ -125,8 +137,8 @@ def _insert_columns(connection: Connection, table: Table, assessment_id: int,
     """Executemany the rows of equal-length ``columns`` in chunks, numbered by their position."""
     size = len(next(iter(columns.values())))
     values = {"assessment_id": repeat(assessment_id, size), "position": range(size)} | columns
-    if all(isinstance(column.type, Integer | Double) for column in table.columns):
-        _insert_numbers(connection, table, values)
+    if all(isinstance(column.type, Integer | Double | String | LargeBinary) for column in table.columns):
+        _insert_plain(connection, table, values)
         return
     keys = list(values)
     rows = (dict(zip(keys, row, strict=True)) for row in zip(*values.values(), strict=True))
@@ -134,11 +146,11 @@ def _insert_columns(connection: Connection, table: Table, assessment_id: int,
         connection.execute(insert(table), chunk)
 
 
-def _insert_numbers(connection: Connection, table: Table, values: dict[str, Iterable]) -> None:
-    """Rows of plain numbers straight to the driver, as tuples when its paramstyle is positional.
+def _insert_plain(connection: Connection, table: Table, values: dict[str, Iterable]) -> None:
+    """Rows of plain values straight to the driver, as tuples when its paramstyle is positional.
 
-    Integers, floats and None need no conversion by SQLAlchemy, whose per-row parameter handling would
-    otherwise take most of the time of a large assessment (the score tables).
+    Integers, floats, text, bytes and None need no conversion by SQLAlchemy, whose per-row parameter
+    handling would otherwise take most of the time of a large assessment (scores, predictions).
     """
     statement = insert(table).compile(dialect=connection.dialect)
     keys = statement.positiontup if statement.positional else [column.name for column in table.columns]

@@ -8,9 +8,14 @@ from fastapi import APIRouter, Query, Request
 from fastapi.responses import JSONResponse, Response
 from sqlalchemy import text
 
-from foldwise import frames
 from foldwise.payload import AssessmentPayload
-from foldwise.store import inner_scores_for, insert_assessment, outer_scores_for
+from foldwise.store import (
+    family_winners_for,
+    inner_scores_for,
+    insert_assessment,
+    outer_scores_for,
+    winners_for,
+)
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
@@ -66,9 +71,8 @@ def winners(request: Request, uuid: str, metric: str | None = None,
     """Fold winners with inner mean ± sd, outer score and optimism (inner mean − outer score)."""
     engine = request.app.state.engine
     metric = metric_or_422(record_or_404(engine, uuid), metric)
-    flag = "overall_winner" if level == "overall" else "family_winner"
-    table = frames.winners_frame(inner_scores_for(engine, uuid), outer_scores_for(engine, uuid), metric, flag=flag)
-    return records(table)
+    read = winners_for if level == "overall" else family_winners_for
+    return records(read(engine, uuid, metric=metric))
 
 
 health = APIRouter()

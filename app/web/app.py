@@ -12,14 +12,16 @@ from fastapi.templating import Jinja2Templates
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 import foldwise
+from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api
+from foldwise.web import api, sharing
 from foldwise.web.formatting import FILTERS
 from foldwise.web.pages import (
     assessment_detail,
     assessments_compare,
     compute_cost,
+    ensembles,
     fold_winners,
     index,
     inner_detail,
@@ -29,6 +31,7 @@ from foldwise.web.pages import (
     score_distributions,
 )
 from foldwise.web.resources import plotly_js, static_dir, templates_dir
+from foldwise.web.security import Guard
 
 CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
            "safety needs external validation and must follow local regulation and licensed practice.")
@@ -38,7 +41,12 @@ def create_app(settings: Settings) -> FastAPI:
     # The interactive docs would load their scripts from a CDN, so they are off; the schema stays.
     app = FastAPI(title="foldwise", version=foldwise.__version__, docs_url=None, redoc_url=None,
                   openapi_url="/api/openapi.json", lifespan=_lifespan)
-    app.state.settings = settings
+    keys = KeyFile(settings.keys_path())
+    if settings.reads_need_key and not keys.active("read"):
+        raise PermissionError(f"refusing to serve on {settings.host} without a read key: every visitor would "
+                              "read the store; create one with `foldwise keys create --read`")
+    keys.ensure_write_key()
+    app.state.settings, app.state.keys = settings, keys
     app.state.engine = make_engine(settings.db_url)
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.filters.update(FILTERS)
@@ -58,6 +66,10 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(paired_comparison.router)
     app.include_router(ranking.router)
     app.include_router(assessments_compare.router)
+    app.include_router(ensembles.router)
+    app.include_router(sharing.router)
+    app.add_middleware(Guard, keys=keys, reads_need_key=settings.reads_need_key,
+                       max_body_bytes=settings.max_body_bytes)
 
     @app.get("/vendor/plotly.min.js", include_in_schema=False, name="plotly_js")
     def plotly():

@@ -51,7 +51,7 @@ def test_make_engine_twice_on_one_store_migrates_once_and_shares_the_data(store_
     assert insert_assessment(first, payload)
     assert load_payload(second, payload.uuid) == payload
     with second.connect() as connection:
-        assert revisions(connection) == ["0002"]
+        assert revisions(connection) == ["0003"]
     first.dispose()
     second.dispose()
 
@@ -128,6 +128,6 @@ def test_several_engines_opening_a_fresh_store_at_once_all_succeed(store_url):
         thread.join()
     assert errors == []
     with engines[0].connect() as connection:
-        assert revisions(connection) == ["0002"]
+        assert revisions(connection) == ["0003"]
     for engine in engines:
         engine.dispose()

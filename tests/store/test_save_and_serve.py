@@ -3,21 +3,17 @@ file and on a PostgreSQL database alike (the team store)."""
 
 from __future__ import annotations
 
-from fastapi.testclient import TestClient
-
 from foldwise.client import save
-from foldwise.settings import Settings
 from foldwise.store import load_payload
-from foldwise.web.app import create_app
 
 
-def test_an_assessment_saved_by_a_script_is_what_the_server_serves(store_url, small_assessment):
+def test_an_assessment_saved_by_a_script_is_what_the_server_serves(store_url, small_assessment, open_client):
     payload = small_assessment.payload  # a real nested CV on scikit-learn's bundled breast-cancer data
     uuid = str(payload.uuid)
     assert save(payload, store_url) is True
     assert save(payload, store_url) is False  # the same uuid again: already stored
 
-    with TestClient(create_app(Settings(db_url=store_url))) as client:
+    with open_client(store_url) as client:
         assert load_payload(client.app.state.engine, uuid) == payload
         assert [row["uuid"] for row in client.get("/api/assessments").json()] == [uuid]
 

@@ -44,8 +44,15 @@ def expected_counts(*payloads) -> dict[str, int]:
              "outer_scores": lambda p: len(p.outer_scores.score),
              "fold_choices": lambda p: len(p.family_winners) + len(p.overall_winners),
              "predictions": lambda p: len(p.predictions), "failures": lambda p: len(p.failures),
-             "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0, "ensemble_members": lambda p: 0}
+             "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0, "ensemble_members": lambda p: 0,
+             "inner_summaries": _summary_count}
     return {name: sum(sizes[name](p) for p in payloads) for name in TABLES}
+
+
+def _summary_count(payload) -> int:
+    """One inner summary per (repeat, outer fold, configuration, metric) the inner scores hold."""
+    inner = payload.inner_scores
+    return len(set(zip(inner.repeat, inner.outer_fold, inner.config, inner.metric, strict=True)))
 
 
 def test_insert_returns_true_then_false_and_stores_nothing_twice(engine, store_url, make_payload):

@@ -7,7 +7,15 @@ from dataclasses import dataclass
 from fastapi import APIRouter, Request
 
 from foldwise import frames
-from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
+from foldwise.store import (
+    AssessmentRecord,
+    EnsembleRecord,
+    ensembles_for,
+    failures_for,
+    family_winners_for,
+    outer_scores_for,
+    winners_for,
+)
 from foldwise.web.formatting import design_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
@@ -37,19 +45,25 @@ class AssessmentContext:
     folds: list[FoldRow]
     failures: list[dict]
     n_failures: int
+    ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
 
 
 def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentContext:
     record = record_or_404(engine, uuid)
     metric, metrics = metric_or_422(record, metric), record.design.metrics
-    inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
-    overall = frames.winners_frame(inner, outer, metric)
-    per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
-    folds = []
-    for (repeat, outer_fold), row in overall.groupby(["repeat", "outer_fold"], sort=True):
-        mine = per_family[(per_family["repeat"] == repeat) & (per_family["outer_fold"] == outer_fold)]
-        folds.append(FoldRow(int(repeat), int(outer_fold), records(row)[0],
-                             {r["family"]: r for r in records(mine)}))
+    # The fold winners' rows only: the inner means come from the summaries stored with the assessment.
+    overall = winners_for(engine, uuid, metric=metric)
+    per_family = family_winners_for(engine, uuid, metric=metric)
+    outer = outer_scores_for(engine, uuid, metric=metric, winners="family")
+    by_fold: dict[tuple[int, int], dict[str, dict]] = {}
+    for row in records(per_family):
+        by_fold.setdefault((row["repeat"], row["outer_fold"]), {})[row["family"]] = row
+    folds, seen = [], set()
+    for row in records(overall):  # sorted by (repeat, outer_fold); the first row of a fold is its winner
+        key = (row["repeat"], row["outer_fold"])
+        if key not in seen:
+            seen.add(key)
+            folds.append(FoldRow(*key, row, by_fold.get(key, {})))
     scores = overall["outer_score"]
     estimate = {"mean": plain(scores.mean()), "sd": plain(scores.std()), "min": plain(scores.min()),
                 "max": plain(scores.max()), "n": int(scores.count())}
@@ -60,7 +74,7 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
         metric=metric, metrics=metrics, estimate=estimate,
         summary=records(frames.family_summary(outer, metric)), families=families,
         colours=family_colours(families), folds=folds, failures=records(failures.head(20)),
-        n_failures=len(failures))
+        n_failures=len(failures), ensembles=ensembles_for(engine, uuid))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail")

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 from fastapi import APIRouter, Request
 
-from foldwise.store import list_assessments
+from foldwise.store import ensemble_counts, list_assessments
 from foldwise.web.formatting import design_text
 from foldwise.web.serialise import records
 
@@ -23,8 +23,10 @@ class IndexContext:
 
 def index_context(engine, *, dataset: str | None, name: str | None) -> IndexContext:
     rows = records(list_assessments(engine, dataset=dataset or None, name=name or None))
+    counts = ensemble_counts(engine)
     for row in rows:
         row["design"] = design_text(row["n_outer_folds"], row["n_inner_folds"], row["n_repeats"])
+        row["n_ensembles"] = counts.get(row["uuid"], 0)
     total = len(rows) if not (dataset or name) else len(list_assessments(engine))
     return IndexContext(rows, dataset or "", name or "", total)
 

@@ -51,7 +51,7 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
                               rope: float) -> PairedComparisonContext:
     record = record_or_404(engine, uuid)
     metric = metric_or_422(record, metric)
-    outer = outer_scores_for(engine, uuid)
+    outer = outer_scores_for(engine, uuid, metric=metric)  # every view below reads this one metric
     families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
     configurations = [Candidate(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")

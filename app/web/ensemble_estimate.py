@@ -1,0 +1,159 @@
+"""The estimate of an ensemble of configurations, beside the selection procedure and the best family.
+
+One function fills the live preview, the save endpoint and the saved ensemble's page, so what a
+script reads is what a person sees.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+
+import numpy as np
+import pandas as pd
+from fastapi import HTTPException
+
+from foldwise import frames
+from foldwise.stats.paired import compare_paired
+from foldwise.stats.summaries import score_summary
+from foldwise.store import AssessmentRecord, outer_folds_for, outer_scores_for, predictions_for
+from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
+from foldwise.web.lookup import metric_or_422
+from foldwise.web.serialise import plain
+
+_LISTED = 12  # configuration ids named in an error message before "and N more"
+
+
+def ensemble_estimate(engine, record: AssessmentRecord, members: list[str], *, metric: str | None,
+                      rope: float = 0.01) -> dict:
+    """The ensemble's outer-fold scores and summary, the rule its members follow, and the comparison."""
+    # scikit-learn is imported only when an ensemble is scored, so the server starts without it.
+    from foldwise.stats.ensembles import ESTIMATE_CAUTION, VOTING_TEXT, score_ensemble
+
+    _check_members(record, members)
+    if metric is not None:
+        metric_or_422(record, metric)
+    design = record.design
+    scored = score_ensemble(_fold_members(engine, record, members), task=design.task, metrics=design.metrics,
+                            classes=design.classes)
+    metric, metric_note = _metric(design.metrics, scored.unavailable, metric)
+    outer = outer_scores_for(engine, record.uuid, metric=metric)  # every view below reads this one metric
+    sizes = fold_sizes(outer)
+    mine = (scored.scores[scored.scores["metric"] == metric].set_index(["repeat", "outer_fold"])["score"]
+            .reindex(sizes.index))
+    selection = overall_fold_scores(outer, metric)
+    best = str(frames.family_summary(outer, metric)["family"].iloc[0])
+    best_scores = family_fold_scores(outer, metric, [best])[best]
+    try:
+        comparison = compare_paired(mine.to_numpy(), selection.to_numpy(),
+                                    n_train=sizes["n_train"].to_numpy(), n_test=sizes["n_test"].to_numpy(),
+                                    rope=rope, names=("the ensemble", "the selection procedure"))
+        comparison, comparison_note = {key: plain(value) for key, value in comparison.items()}, None
+    except ValueError as error:
+        comparison, comparison_note = None, f"no paired comparison: {error}"
+    folds = [{"repeat": pair["repeat"], "outer_fold": pair["outer_fold"], "ensemble": pair["a"],
+              "selection": pair["b"], "diff": pair["diff"], "best_family": best_score}
+             for pair, best_score in zip(fold_pairs(mine, selection), _numbers(best_scores), strict=True)]
+    by_metric = scored.scores.groupby("metric", sort=False)["score"]
+    return {
+        "uuid": record.uuid, "members": list(members), "member_details": _details(record, outer, members),
+        "rule": _rule(record, outer, members), "caution": ESTIMATE_CAUTION,
+        "voting": scored.voting, "voting_text": VOTING_TEXT[scored.voting], "metric": metric,
+        "metric_note": metric_note, "fold_scores": _fold_scores(mine), **_summary(mine),
+        "selection": {"fold_scores": _fold_scores(selection), **_summary(selection)},
+        "best_family": {"family": best, "fold_scores": _fold_scores(best_scores), **_summary(best_scores)},
+        "folds": folds, "comparison": comparison, "comparison_note": comparison_note, "rope": rope,
+        "metrics": [{"metric": name, "available": True, **_summary(scores)} for name, scores in by_metric]
+        + [{"metric": name, "available": False, "reason": reason}
+           for name, reason in scored.unavailable.items()],
+    }
+
+
+def _check_members(record: AssessmentRecord, members: list[str]) -> None:
+    if not members:
+        raise HTTPException(422, "members is empty: name at least one configuration id (tick a fold winner)")
+    repeated = sorted(member for member, count in Counter(members).items() if count > 1)
+    if repeated:
+        raise HTTPException(422, f"members names {repeated} more than once; a configuration counts once "
+                                 f"in an ensemble, so give each id once")
+    known = [config.id for config in record.configurations]
+    unknown = [member for member in members if member not in frozenset(known)]
+    if unknown:
+        more = f" and {len(known) - _LISTED} more" if len(known) > _LISTED else ""
+        raise HTTPException(422, f"members {unknown} are not configurations of this assessment; its "
+                                 f"configuration ids are {known[:_LISTED]}{more}")
+
+
+def _fold_members(engine, record: AssessmentRecord, members: list[str]) -> list:
+    from foldwise.stats.ensembles import FoldMembers
+
+    stored = {(p.repeat, p.outer_fold, p.config): (p.kind, p.values)
+              for p in predictions_for(engine, record.uuid, configs=members)}
+    without = [member for member in members if not any(key[2] == member for key in stored)]
+    if without:
+        raise HTTPException(422, f"members {without} have no stored outer-test predictions (the run kept "
+                                 f"none, or every outer fit of them failed), so no ensemble with them can be "
+                                 f"scored")
+    folds = sorted(outer_folds_for(engine, record.uuid), key=lambda fold: (fold.repeat, fold.outer_fold))
+    if any(fold.y_true is None for fold in folds):
+        raise HTTPException(422, "this assessment stored no true targets of its outer test folds, so an "
+                                 "ensemble cannot be scored from its predictions")
+    result = []
+    for fold in folds:
+        keys = [(fold.repeat, fold.outer_fold, member) for member in members]
+        predictions = [stored[key] for key in keys] if all(key in stored for key in keys) else None
+        result.append(FoldMembers(fold.repeat, fold.outer_fold, fold.y_true, predictions))
+    return result
+
+
+def _metric(metrics: list[str], unavailable: dict[str, str], asked: str | None) -> tuple[str, str | None]:
+    available = [metric for metric in metrics if metric not in unavailable]
+    if asked is not None and asked in unavailable:
+        raise HTTPException(422, f"{unavailable[asked]}; choose one of {available}")
+    if not available:
+        raise HTTPException(422, f"no recorded metric can be computed from these predictions: {unavailable}")
+    if asked is not None:
+        return asked, None
+    if metrics[0] in unavailable:
+        return available[0], f"{unavailable[metrics[0]]}, so the estimate is on {available[0]}"
+    return metrics[0], None
+
+
+def _details(record: AssessmentRecord, outer: pd.DataFrame, members: list[str]) -> list[dict]:
+    """Per member: its family, parameters and in how many outer folds it won its family, and overall."""
+    rows = outer.drop_duplicates(["repeat", "outer_fold", "config"])
+    family_wins = rows[rows["family_winner"]]["config"].value_counts()
+    overall_wins = rows[rows["overall_winner"]]["config"].value_counts()
+    configs = {config.id: config for config in record.configurations}
+    return [{"config": member, "family": configs[member].family, "params": configs[member].params,
+             "n_family_wins": int(family_wins.get(member, 0)),
+             "n_overall_wins": int(overall_wins.get(member, 0))}
+            for member in members]
+
+
+def _rule(record: AssessmentRecord, outer: pd.DataFrame, members: list[str]) -> str:
+    """Which rule fixed in advance the members follow, if any; else "hand-picked"."""
+    rows, chosen = outer.drop_duplicates(["repeat", "outer_fold", "config"]), set(members)
+    if chosen == set(rows[rows["overall_winner"]]["config"]):
+        return "all overall fold winners"
+    for family in (family.name for family in record.families):
+        if chosen == set(rows[rows["family_winner"] & (rows["family"] == family)]["config"]):
+            return f"all fold winners of {family}"
+    return "hand-picked"
+
+
+def _summary(scores: pd.Series) -> dict:
+    values = scores.to_numpy(dtype=float)
+    if np.isnan(values).all():
+        return {"mean": None, "sd": None, "n": 0, "n_missing": int(values.size)}
+    summary = score_summary(values)
+    return {"mean": plain(summary.mean), "sd": plain(summary.sd), "n": summary.n,
+            "n_missing": summary.n_missing}
+
+
+def _fold_scores(scores: pd.Series) -> list[dict]:
+    return [{"repeat": int(repeat), "outer_fold": int(outer_fold), "score": plain(score)}
+            for (repeat, outer_fold), score in scores.items()]
+
+
+def _numbers(scores: pd.Series) -> list[float | None]:
+    return [plain(score) for score in scores.to_numpy(dtype=float)]

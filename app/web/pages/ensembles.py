@@ -1,0 +1,166 @@
+"""Ensembles of fold winners: the live estimate, saving, the saved ensemble's page and its downloads."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+
+from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi.responses import JSONResponse, Response
+from pydantic import BaseModel, ConfigDict, Field
+
+from foldwise.store import (
+    AssessmentRecord,
+    EnsembleRecord,
+    delete_ensemble,
+    ensemble_members_for,
+    ensembles_for,
+    fitted_model_counts,
+    fitted_models_for,
+    get_ensemble,
+    insert_ensemble,
+)
+from foldwise.web.ensemble_estimate import ensemble_estimate
+from foldwise.web.lookup import record_or_404
+from foldwise.web.palette import family_colours
+from foldwise.web.serialise import plain, to_csv
+
+router = APIRouter()
+
+
+class PreviewRequest(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    members: list[str] = Field(description="configuration ids, each once")
+    metric: str | None = Field(default=None, description="a recorded metric; default the selection metric")
+    rope: float = Field(default=0.01, ge=0, description="half-width of the region of practical equivalence")
+
+
+class SaveRequest(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+    name: str = Field(min_length=1, max_length=200)
+    note: str = Field(default="", max_length=5_000)
+    members: list[str]
+    metric: str | None = None
+
+
+@dataclass(frozen=True)
+class EnsembleDetailContext:
+    record: AssessmentRecord
+    ensemble: EnsembleRecord
+    estimate: dict  # ensemble_estimate's answer for the saved members on the saved metric
+    models_kept: bool  # every member has kept fitted fold winners: the prefit model file can be made
+    colours: dict[str, str]
+    estimate_json: str
+
+
+def ensemble_detail_context(engine, eid: str) -> EnsembleDetailContext:
+    ensemble = _ensemble_or_404(engine, eid)
+    record = record_or_404(engine, ensemble.assessment_uuid)
+    estimate = ensemble_estimate(engine, record, ensemble.members, metric=ensemble.metric)
+    counts = fitted_model_counts(engine, record.uuid)
+    return EnsembleDetailContext(record=record, ensemble=ensemble, estimate=estimate,
+                                 models_kept=all(counts.get(member) for member in ensemble.members),
+                                 colours=family_colours([family.name for family in record.families]),
+                                 estimate_json=json.dumps(estimate))
+
+
+@router.get("/ensembles/{eid}", name="ensemble_detail")
+def ensemble_detail(request: Request, eid: str):
+    context = ensemble_detail_context(request.app.state.engine, eid)
+    return request.app.state.templates.TemplateResponse(request, "ensemble_detail.html", {"page": context})
+
+
+@router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview")
+def preview(request: Request, uuid: str, body: PreviewRequest):
+    """Score the ensemble of ``members`` on every outer fold of every repeat from the stored predictions."""
+    engine = request.app.state.engine
+    return ensemble_estimate(engine, record_or_404(engine, uuid), body.members, metric=body.metric,
+                             rope=body.rope)
+
+
+@router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble")
+def save(request: Request, uuid: str, body: SaveRequest):
+    """Save a named ensemble with its members, a note and its estimate (in one transaction)."""
+    engine = request.app.state.engine
+    estimate = ensemble_estimate(engine, record_or_404(engine, uuid), body.members, metric=body.metric)
+    try:
+        ensemble = insert_ensemble(engine, uuid, name=body.name, note=body.note, members=body.members,
+                                   voting=estimate["voting"], metric=estimate["metric"],
+                                   estimate_mean=estimate["mean"], estimate_sd=estimate["sd"])
+    except ValueError as error:
+        raise HTTPException(422, str(error)) from None
+    return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
+
+
+@router.get("/api/assessments/{uuid}/ensembles", name="assessment_ensembles")
+def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(json|csv)$")):
+    """The assessment's saved ensembles; as CSV, one row per ensemble and member."""
+    engine = request.app.state.engine
+    record_or_404(engine, uuid)
+    if format == "csv":
+        return Response(to_csv(ensemble_members_for(engine, uuid)), media_type="text/csv", headers={
+            "content-disposition": f'attachment; filename="{uuid}-ensembles.csv"'})
+    return [_ensemble_json(request, ensemble) for ensemble in ensembles_for(engine, uuid)]
+
+
+@router.get("/api/ensembles/{eid}", name="ensemble_json")
+def one(request: Request, eid: str):
+    """A saved ensemble with its estimate recomputed from the stored predictions."""
+    page = ensemble_detail_context(request.app.state.engine, eid)
+    return _ensemble_json(request, page.ensemble) | {"estimate": page.estimate,
+                                                     "models_kept": page.models_kept}
+
+
+@router.delete("/api/ensembles/{eid}", status_code=204, name="delete_ensemble")
+def delete(request: Request, eid: str):
+    if not delete_ensemble(request.app.state.engine, eid):
+        raise HTTPException(404, f"no ensemble {eid!r} in this store")
+    return Response(status_code=204)
+
+
+@router.get("/api/ensembles/{eid}/spec", name="ensemble_spec")
+def spec(request: Request, eid: str):
+    """The members as plain JSON (family, estimator class path, parameters): no foldwise needed to read it."""
+    from foldwise.ensemble import ensemble_spec  # scikit-learn loads only when an ensemble is exported
+
+    engine = request.app.state.engine
+    ensemble = _ensemble_or_404(engine, eid)
+    body = ensemble_spec(record_or_404(engine, ensemble.assessment_uuid), ensemble)
+    return Response(json.dumps(body, indent=2), media_type="application/json", headers={
+        "content-disposition": f'attachment; filename="ensemble-{eid}.json"'})
+
+
+@router.get("/api/ensembles/{eid}/model", name="ensemble_model")
+def model(request: Request, eid: str):
+    """A skops file of the kept fold winners of the members, averaged, ready to predict."""
+    import skops.io
+
+    from foldwise.ensemble import UntrustedTypes, prefit_ensemble
+
+    engine = request.app.state.engine
+    ensemble = _ensemble_or_404(engine, eid)
+    record = record_or_404(engine, ensemble.assessment_uuid)
+    try:
+        models = fitted_models_for(engine, record.uuid, configs=ensemble.members)
+        fitted = prefit_ensemble(record, ensemble, models)
+    except LookupError as error:
+        raise HTTPException(409, str(error)) from None
+    except (UntrustedTypes, ValueError) as error:
+        raise HTTPException(422, str(error)) from None
+    return Response(skops.io.dumps(fitted), media_type="application/octet-stream", headers={
+        "content-disposition": f'attachment; filename="ensemble-{eid}.skops"'})
+
+
+def _ensemble_or_404(engine, eid: str) -> EnsembleRecord:
+    ensemble = get_ensemble(engine, eid)
+    if ensemble is None:
+        raise HTTPException(404, f"no ensemble {eid!r} in this store: ensemble ids are uuids, listed on the "
+                                 f"assessment page and at /api/assessments/{{uuid}}/ensembles")
+    return ensemble
+
+
+def _ensemble_json(request: Request, ensemble: EnsembleRecord) -> dict:
+    fields = {name: plain(value) for name, value in vars(ensemble).items()}
+    return fields | {"url": str(request.url_for("ensemble_detail", eid=ensemble.id)),
+                     "spec_url": str(request.url_for("ensemble_spec", eid=ensemble.id)),
+                     "model_url": str(request.url_for("ensemble_model", eid=ensemble.id))}

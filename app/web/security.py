@@ -1,0 +1,160 @@
+"""Who may read and write, from where, how much, and the headers that keep a browser safe.
+
+One ASGI middleware, in front of every route:
+
+- a body larger than the limit gets 413 before the app reads it;
+- a request that changes the store needs a write key; with reads restricted (any address other than
+  loopback, or when asked), every page and API call needs a read or write key;
+- a key arrives as ``Authorization: Bearer``, as the ``foldwise_key`` cookie, or once as ``?key=`` on a
+  link, which is turned into an HttpOnly, SameSite=Strict cookie and redirected to the same URL without
+  it, so the key does not linger in history or screenshots;
+- a state-changing request that names an Origin must come from the dashboard's own origin (the
+  SameSite cookie already keeps other sites' forms from carrying the key);
+- every response carries a strict Content-Security-Policy and its companions.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from urllib.parse import parse_qsl, urlencode
+
+from foldwise.keys import KeyFile
+
+COOKIE = "foldwise_key"
+_OPEN = re.compile(r"^/(healthz|static/|vendor/|favicon)")
+# POSTs that compute but store nothing: any reader may make them.
+_READ_ONLY_POSTS = re.compile(r"^/api/assessments/[^/]+/ensembles/preview$")
+_SAFE_METHODS = {"GET", "HEAD", "OPTIONS"}
+_HEADERS = [
+    (b"content-security-policy",
+     b"default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data: blob:; "
+     b"font-src 'self' data:; connect-src 'self'; object-src 'none'; base-uri 'none'; form-action 'self'; "
+     b"frame-ancestors 'none'"),
+    (b"x-content-type-options", b"nosniff"),
+    (b"x-frame-options", b"DENY"),
+    (b"referrer-policy", b"no-referrer"),
+    (b"cross-origin-opener-policy", b"same-origin"),
+]
+
+
+class Guard:
+    def __init__(self, app, *, keys: KeyFile, reads_need_key: bool, max_body_bytes: int):
+        self.app, self.keys = app, keys
+        self.reads_need_key, self.max_body_bytes = reads_need_key, max_body_bytes
+
+    async def __call__(self, scope, receive, send):
+        if scope["type"] != "http":
+            return await self.app(scope, receive, send)
+        send = _with_headers(send)
+        headers = {name.decode("latin-1"): value.decode("latin-1") for name, value in scope["headers"]}
+        method, path = scope["method"], scope["path"]
+
+        length = headers.get("content-length", "")
+        if length.isdigit() and int(length) > self.max_body_bytes:
+            return await _reply(send, 413, f"the request body has {int(length)} bytes; this server takes at most "
+                                           f"{self.max_body_bytes} (FOLDWISE_MAX_BODY_MB)")
+        if _OPEN.match(path):
+            return await self.app(scope, receive, send)
+
+        query = parse_qsl(scope.get("query_string", b"").decode("latin-1"), keep_blank_values=True)
+        offered = dict(query).get("key")
+        if offered is not None and method == "GET":
+            return await self._trade_for_cookie(scope, send, offered, query)
+
+        key = self.keys.find(_bearer(headers) or _cookie(headers))
+        writes = method not in _SAFE_METHODS and not _READ_ONLY_POSTS.match(path)
+        if method not in _SAFE_METHODS and not _same_origin(headers, scope):
+            return await _reply(send, 403, "cross-origin request refused: state-changing requests must come "
+                                           "from this dashboard's own pages")
+        if writes and (key is None or key.kind != "write"):
+            return await _reply(send, 401, "this request changes the store and needs a write key: send "
+                                           "'Authorization: Bearer <key>' (see `foldwise keys show`)")
+        if self.reads_need_key and key is None:
+            return await _reply(send, 401, "this dashboard needs a key: open the share link you were given, "
+                                           "or send 'Authorization: Bearer <key>'")
+        if method not in _SAFE_METHODS and not length.isdigit():
+            body = await _read_at_most(receive, self.max_body_bytes)
+            if body is None:
+                return await _reply(send, 413, f"the request body is over this server's limit of "
+                                               f"{self.max_body_bytes} bytes (FOLDWISE_MAX_BODY_MB)")
+            receive = _replay(body, receive)
+        return await self.app(scope, receive, send)
+
+    async def _trade_for_cookie(self, scope, send, offered: str, query) -> None:
+        if self.keys.find(offered) is None:
+            return await _reply(send, 401, "this link's key is not valid (it may have been revoked)")
+        rest = urlencode([(name, value) for name, value in query if name != "key"])
+        location = scope["path"] + (f"?{rest}" if rest else "")
+        cookie = f"{COOKIE}={offered}; HttpOnly; SameSite=Strict; Path=/; Max-Age=2592000"
+        await send({"type": "http.response.start", "status": 303,
+                    "headers": [(b"location", location.encode("latin-1")), (b"set-cookie", cookie.encode("latin-1")),
+                                (b"cache-control", b"no-store")]})
+        await send({"type": "http.response.body", "body": b""})
+
+
+async def _read_at_most(receive, limit: int) -> bytes | None:
+    """A body sent without Content-Length (chunked), read whole unless it passes the limit."""
+    chunks, seen = [], 0
+    while True:
+        message = await receive()
+        if message["type"] != "http.request":
+            return b"".join(chunks)
+        chunks.append(message.get("body", b""))
+        seen += len(chunks[-1])
+        if seen > limit:
+            return None
+        if not message.get("more_body", False):
+            return b"".join(chunks)
+
+
+def _replay(body: bytes, original):
+    sent = False
+
+    async def receive():
+        nonlocal sent
+        if sent:  # after the body, wait for the real disconnect
+            return await original()
+        sent = True
+        return {"type": "http.request", "body": body, "more_body": False}
+
+    return receive
+
+
+def _with_headers(send):
+    async def sending(message):
+        if message["type"] == "http.response.start":
+            names = {name.lower() for name, _ in message.get("headers", [])}
+            message = {**message, "headers": [*message.get("headers", []),
+                                              *[(n, v) for n, v in _HEADERS if n not in names]]}
+        await send(message)
+
+    return sending
+
+
+async def _reply(send, status: int, detail: str) -> None:
+    body = json.dumps({"detail": detail}).encode()
+    await send({"type": "http.response.start", "status": status,
+                "headers": [(b"content-type", b"application/json"), (b"content-length", str(len(body)).encode())]})
+    await send({"type": "http.response.body", "body": body})
+
+
+def _bearer(headers: dict) -> str | None:
+    value = headers.get("authorization", "")
+    return value[7:].strip() if value.lower().startswith("bearer ") else None
+
+
+def _cookie(headers: dict) -> str | None:
+    for part in headers.get("cookie", "").split(";"):
+        name, _, value = part.strip().partition("=")
+        if name == COOKIE:
+            return value
+    return None
+
+
+def _same_origin(headers: dict, scope) -> bool:
+    origin = headers.get("origin")
+    if origin is None:  # not sent by a browser page (scripts, the push client): the key decides
+        return True
+    host = headers.get("host", "")
+    return origin in (f"{scope.get('scheme', 'http')}://{host}", f"http://{host}", f"https://{host}")
