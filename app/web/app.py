@@ -42,7 +42,7 @@ def create_app(settings: Settings) -> FastAPI:
     app = FastAPI(title="foldwise", version=foldwise.__version__, docs_url=None, redoc_url=None,
                   openapi_url="/api/openapi.json", lifespan=_lifespan)
     keys = KeyFile(settings.keys_path())
-    if settings.reads_need_key and not keys.active("read"):
+    if not settings.loopback and not keys.active("read"):
         raise PermissionError(f"refusing to serve on {settings.host} without a read key: every visitor would "
                               "read the store; create one with `foldwise keys create --read`")
     keys.ensure_write_key()

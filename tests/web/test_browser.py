@@ -2,33 +2,11 @@
 
 from __future__ import annotations
 
-import os
-import shutil
-
 import pytest
 
 from foldwise.client import save
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 pytestmark = pytest.mark.browser
-
-if not os.path.exists(CHROMIUM):
-    if os.environ.get("CI"):
-        raise RuntimeError("CI must run the browser tests: install Debian's chromium package")
-    pytest.skip("Debian's chromium is not installed (`apt-get install chromium`)", allow_module_level=True)
-
-from playwright.sync_api import sync_playwright  # noqa: E402
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with sync_playwright() as playwright:
-        browser = playwright.chromium.launch(
-            executable_path=CHROMIUM, headless=True,
-            args=["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                  "--disable-background-networking", "--disable-component-update", "--disable-sync"])
-        yield browser
-        browser.close()
 
 
 def _open(browser, url):

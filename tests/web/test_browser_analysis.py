@@ -2,9 +2,6 @@
 
 from __future__ import annotations
 
-import os
-import shutil
-
 import pytest
 from sklearn.datasets import load_breast_cancer
 from sklearn.model_selection import RepeatedStratifiedKFold
@@ -13,32 +10,18 @@ from sklearn.tree import DecisionTreeClassifier
 import foldwise
 from foldwise.client import save
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 pytestmark = pytest.mark.browser
-
-if not os.path.exists(CHROMIUM):
-    if os.environ.get("CI"):
-        raise RuntimeError("CI must run the browser tests: install Debian's chromium package")
-    pytest.skip("Debian's chromium is not installed (`apt-get install chromium`)", allow_module_level=True)
-
-from playwright.sync_api import sync_playwright  # noqa: E402
 
 ALL_DRAWN = ("() => { const charts = document.querySelectorAll('.chart');"
              " return charts.length > 0 && [...charts].every(c => c.dataset.drawn === 'true'); }")
 
 
 @pytest.fixture(scope="module")
-def browser():
+def browser(browser):
     """One browser context for the module, so plotly.js is fetched once and then served from its cache."""
-    with sync_playwright() as playwright:
-        browser = playwright.chromium.launch(
-            executable_path=CHROMIUM, headless=True,
-            args=["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                  "--disable-background-networking", "--disable-component-update", "--disable-sync"])
-        context = browser.new_context()
-        yield context
-        context.close()
-        browser.close()
+    context = browser.new_context()
+    yield context
+    context.close()
 
 
 @pytest.fixture(scope="module")

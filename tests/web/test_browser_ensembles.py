@@ -4,8 +4,6 @@ tick three fold winners, watch the estimate follow, save, reload, find the ensem
 from __future__ import annotations
 
 import json
-import os
-import shutil
 import time
 from urllib.parse import parse_qs, urlparse
 
@@ -21,28 +19,9 @@ from sklearn.tree import DecisionTreeClassifier
 import foldwise
 from foldwise.client import save
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 pytestmark = pytest.mark.browser
 
-if not os.path.exists(CHROMIUM):
-    if os.environ.get("CI"):
-        raise RuntimeError("CI must run the browser tests: install Debian's chromium package")
-    pytest.skip("Debian's chromium is not installed (`apt-get install chromium`)", allow_module_level=True)
-
-from playwright.sync_api import sync_playwright  # noqa: E402
-
 BUILDER = "#ensemble-builder"
-
-
-@pytest.fixture(scope="module")
-def browser():
-    with sync_playwright() as playwright:
-        browser = playwright.chromium.launch(
-            executable_path=CHROMIUM, headless=True,
-            args=["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                  "--disable-background-networking", "--disable-component-update", "--disable-sync"])
-        yield browser
-        browser.close()
 
 
 @pytest.fixture(scope="module")
