@@ -148,11 +148,11 @@ def test_failures_name_their_configuration_and_family(engine, stored):
 
 def test_list_assessments_newest_first_with_case_insensitive_filters(engine, make_payload):
     # Wall-clock order differs from the instants' order once the offsets are taken into account.
-    a = make_payload(name="Ridge 50% sweep", dataset="Invented Coins",
+    a = make_payload(name="Ridge 50% search", dataset="Invented Coins",
                      created_at=datetime(2024, 1, 1, 10, 0, tzinfo=timezone(timedelta(hours=5))))  # 05:00 UTC
-    b = make_payload(name="forest sweep", dataset="invented coins v2",
+    b = make_payload(name="forest search", dataset="invented coins v2",
                      created_at=datetime(2024, 1, 1, 7, 0, tzinfo=UTC))                            # 07:00 UTC
-    c = make_payload(name="knn sweep", dataset=None,
+    c = make_payload(name="knn search", dataset=None,
                      created_at=datetime(2024, 1, 1, 6, 0, tzinfo=timezone(timedelta(hours=-2))))  # 08:00 UTC
     for payload in (a, b, c):
         insert_assessment(engine, payload)
@@ -173,7 +173,7 @@ def test_list_assessments_newest_first_with_case_insensitive_filters(engine, mak
 
     assert uuids(dataset="COINS") == [str(b.uuid), str(a.uuid)]
     assert uuids(dataset="coins", name="FOREST") == [str(b.uuid)]
-    assert uuids(name="sweep") == [str(c.uuid), str(b.uuid), str(a.uuid)]
+    assert uuids(name="search") == [str(c.uuid), str(b.uuid), str(a.uuid)]
     assert uuids(name="%") == [str(a.uuid)]  # a literal percent sign, not a wildcard
-    assert uuids(name="n_s") == []           # nor is an underscore ("knn sweep" has "n s")
+    assert uuids(name="n_s") == []           # nor is an underscore ("knn search" has "n s")
     assert list_assessments(engine, name="nothing like it").empty
