@@ -99,3 +99,23 @@ def test_plotly_is_served_locally(client):
     response = client.get("/vendor/plotly.min.js")
     assert response.status_code == 200
     assert len(response.content) > 1_000_000
+
+
+def test_csv_cells_a_spreadsheet_would_run_are_neutralised(client):
+    # A family named like a formula; spreadsheets run cells starting with =, +, - or @ (OWASP's advice on
+    # CSV injection: prefix such cells with a single quote).
+    from sklearn.datasets import load_iris
+    from sklearn.tree import DecisionTreeClassifier
+
+    import foldwise
+
+    X, y = load_iris(return_X_y=True)
+    assessment = foldwise.nested_cv({"=HYPERLINK(\"http://x\")": (DecisionTreeClassifier(random_state=0),
+                                                                   {"max_depth": [1, 2]})},
+                                    X, y, outer=3, inner=2, n_jobs=1, progress=False, name="@risky")
+    assert _push(client, assessment.payload).status_code == 201
+    text = client.get(f"/api/assessments/{assessment.uuid}/scores", params={"format": "csv"}).text
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert rows[0]["family"] == "'=HYPERLINK(\"http://x\")"
+    assert rows[0]["config"].startswith("'=")
+    assert float(rows[0]["score"]) == assessment.outer_scores["score"].iloc[0]  # numbers stay numbers
