@@ -38,7 +38,8 @@ def to_csv(frame: pd.DataFrame) -> str:
     """CSV with params as JSON, and text cells that a spreadsheet would run as a formula neutralised."""
     frame = frame.copy()
     for column in frame.columns:
-        if frame[column].dtype == object:
+        # pandas 3 keeps text in a string dtype, older pandas as object: both may hold formulas.
+        if pd.api.types.is_object_dtype(frame[column]) or pd.api.types.is_string_dtype(frame[column]):
             frame[column] = [_cell(value) for value in frame[column]]
     return frame.to_csv(index=False)
 
