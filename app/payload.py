@@ -14,15 +14,35 @@ import hashlib
 import json
 import math
 from datetime import UTC, datetime
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 from uuid import UUID, uuid4
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, FiniteFloat, field_validator, model_validator
 
 SCHEMA_VERSION = 1
 
-Label = bool | int | float | str
+# The largest count an INTEGER column holds on every backend (PostgreSQL's is 32-bit).
+MAX_COUNT = 2**31 - 1
+# Parameters, seeds and versions are free-form JSON; deeper than this is a mistake, and costly to walk.
+MAX_DEPTH = 32
+
+
+def _storable_text(text: str) -> str:
+    """Text that every backend stores and gives back: UTF-8 (no unpaired surrogate), without NUL."""
+    position = text.find("\x00")
+    if position >= 0:
+        raise ValueError(f"holds a NUL character at position {position}, which no text column can store; "
+                         "remove it")
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError as error:
+        raise ValueError(f"is not UTF-8 text: an unpaired surrogate at position {error.start}") from None
+    return text
+
+
+Text = Annotated[str, AfterValidator(_storable_text)]
+Label = bool | int | FiniteFloat | Text
 
 
 class _Strict(BaseModel):
@@ -32,9 +52,9 @@ class _Strict(BaseModel):
 class Family(_Strict):
     """A model family: one estimator whose parameters the configurations vary."""
 
-    name: str = Field(min_length=1, max_length=200)
-    estimator: str = Field(default="", max_length=20_000, description="repr of the unfitted estimator")
-    estimator_class: str = Field(default="", max_length=500, description="import path of its class")
+    name: Text = Field(min_length=1, max_length=200)
+    estimator: Text = Field(default="", max_length=20_000, description="repr of the unfitted estimator")
+    estimator_class: Text = Field(default="", max_length=500, description="import path of its class")
     estimator_skops: str | None = Field(default=None, description="base64 of skops.io.dumps of the unfitted "
                                                                    "estimator, as the runner saw it")
 
@@ -42,8 +62,8 @@ class Family(_Strict):
 class Configuration(_Strict):
     """One point of a family's grid."""
 
-    id: str = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
-    family: str = Field(min_length=1, max_length=200)
+    id: Text = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
+    family: Text = Field(min_length=1, max_length=200)
     params: dict[str, Any] = Field(default_factory=dict)
 
 
@@ -51,16 +71,16 @@ class Design(_Strict):
     """How the nested cross-validation was laid out."""
 
     task: Literal["classification", "regression"]
-    n_samples: int = Field(ge=1)
-    n_features: int | None = Field(default=None, ge=0)
-    n_repeats: int = Field(ge=1)
-    n_outer_folds: int = Field(ge=1, description="outer folds per repeat")
-    n_inner_folds: int = Field(ge=1)
+    n_samples: int = Field(ge=1, le=MAX_COUNT)
+    n_features: int | None = Field(default=None, ge=0, le=MAX_COUNT)
+    n_repeats: int = Field(ge=1, le=MAX_COUNT)
+    n_outer_folds: int = Field(ge=1, le=MAX_COUNT, description="outer folds per repeat")
+    n_inner_folds: int = Field(ge=1, le=MAX_COUNT)
     outer_splitter: str = Field(default="", max_length=2_000)
     inner_splitter: str = Field(default="", max_length=2_000)
     grouped: bool = False
     refit_all: bool = Field(default=True, description="every configuration refit on every outer fold")
-    metrics: list[str] = Field(min_length=1, description="scorer names; the first one selects")
+    metrics: list[Text] = Field(min_length=1, description="scorer names; the first one selects")
     classes: list[Label] | None = None
 
     @property
@@ -71,7 +91,7 @@ class Design(_Strict):
 class OuterFold(_Strict):
     repeat: int = Field(ge=0)
     outer_fold: int = Field(ge=0)
-    n_train: int = Field(ge=1)
+    n_train: int = Field(ge=1, le=MAX_COUNT)
     test_indices: list[int] = Field(min_length=1, description="row positions in the data set")
     y_true: list[Label] | None = Field(default=None, description="true targets of the test rows")
 
@@ -152,7 +172,7 @@ class Failure(_Strict):
     outer_fold: int = Field(ge=0)
     inner_fold: int | None = Field(default=None, ge=0)
     config: int = Field(ge=0)
-    message: str = Field(max_length=20_000)
+    message: Text = Field(max_length=20_000)
 
 
 class AssessmentPayload(_Strict):
@@ -160,8 +180,8 @@ class AssessmentPayload(_Strict):
 
     schema_version: Literal[1] = SCHEMA_VERSION
     uuid: UUID = Field(default_factory=uuid4)
-    name: str = Field(min_length=1, max_length=200)
-    dataset: str | None = Field(default=None, max_length=200)
+    name: Text = Field(min_length=1, max_length=200)
+    dataset: Text | None = Field(default=None, max_length=200)
     created_at: datetime = Field(default_factory=lambda: datetime.now(UTC))
     design: Design
     families: list[Family] = Field(min_length=1)
@@ -176,7 +196,19 @@ class AssessmentPayload(_Strict):
     models: list[FittedModel] = Field(default_factory=list, description="fitted family winners, if kept")
     versions: dict[str, str] = Field(default_factory=dict)
     seeds: dict[str, Any] = Field(default_factory=dict)
-    total_fit_time: float = Field(default=0.0, ge=0)
+    total_fit_time: float = Field(default=0.0, ge=0, allow_inf_nan=False)
+
+    @field_validator("created_at")
+    @classmethod
+    def _has_utc_time(cls, value: datetime) -> datetime:
+        # The store keeps UTC wall time; near year 1 or 9999 an offset can shift a time off the calendar.
+        if value.utcoffset() is not None:
+            try:
+                value.astimezone(UTC)
+            except OverflowError:
+                raise ValueError(f"{value.isoformat()} lies outside the years 1..9999 once taken to UTC; "
+                                 "send a time between them") from None
+        return value
 
     @model_validator(mode="after")
     def _consistent(self):
@@ -229,6 +261,9 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     for position, config in enumerate(payload.configurations):
         if config.family not in family_names:
             raise ValueError(f"configurations[{position}].family: {config.family!r} is not in families")
+        _check_plain_json(f"configurations[{position}].params", config.params)
+    _check_plain_json("seeds", payload.seeds)
+    _check_plain_json("versions", payload.versions)
 
     folds = {}
     for position, fold in enumerate(payload.outer_folds):
@@ -240,7 +275,8 @@ def _check_consistency(payload: AssessmentPayload) -> None:
         if key in folds:
             raise ValueError(f"{where}: repeat {fold.repeat}, outer fold {fold.outer_fold} appears twice")
         if min(fold.test_indices) < 0 or max(fold.test_indices) >= design.n_samples:
-            raise ValueError(f"{where}.test_indices: indices must lie in 0..{design.n_samples - 1}")
+            raise ValueError(f"{where}.test_indices: indices must lie in 0..{design.n_samples - 1} "
+                             f"(design.n_samples is {design.n_samples})")
         if fold.y_true is not None and len(fold.y_true) != len(fold.test_indices):
             raise ValueError(f"{where}.y_true: {len(fold.y_true)} values for "
                              f"{len(fold.test_indices)} test rows")
@@ -256,14 +292,21 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     for position, prediction in enumerate(payload.predictions):
         where = f"predictions[{position}]"
         _check_reference(where, prediction, folds, n_configs)
-        size = len(base64.b64decode(prediction.data, validate=False)) if prediction.data else 0
-        expected = len(folds[(prediction.repeat, prediction.outer_fold)].test_indices) * prediction.n_columns
-        if size != expected * 8:
-            raise ValueError(f"{where}.data: holds {size // 8} float64 values, expected {expected} "
-                             f"(test rows × n_columns)")
+        try:
+            size = len(base64.b64decode(prediction.data, validate=False))
+        except ValueError:
+            raise ValueError(f"{where}.data: not base64 text (received {prediction.data[:40]!r}...)") from None
+        n_test = len(folds[(prediction.repeat, prediction.outer_fold)].test_indices)
+        if size != n_test * prediction.n_columns * 8:
+            raise ValueError(f"{where}.data: holds {size // 8} float64 values, expected "
+                             f"{n_test * prediction.n_columns}: {n_test} test rows (its fold in outer_folds) × "
+                             f"n_columns {prediction.n_columns}")
 
     for position, failure in enumerate(payload.failures):
         _check_reference(f"failures[{position}]", failure, folds, n_configs)
+        if failure.inner_fold is not None and failure.inner_fold >= design.n_inner_folds:
+            raise ValueError(f"failures[{position}].inner_fold: {failure.inner_fold} is out of range of "
+                             f"design.n_inner_folds (0..{design.n_inner_folds - 1})")
 
     for position, family in enumerate(payload.families):
         if family.estimator_skops is not None:
@@ -291,7 +334,8 @@ def _check_reference(where: str, item, folds: dict, n_configs: int) -> None:
     if (item.repeat, item.outer_fold) not in folds:
         raise ValueError(f"{where}: repeat {item.repeat}, outer fold {item.outer_fold} is not in outer_folds")
     if item.config >= n_configs:
-        raise ValueError(f"{where}.config: {item.config} is out of range (0..{n_configs - 1})")
+        raise ValueError(f"{where}.config: {item.config} is not a position in configurations "
+                         f"(0..{n_configs - 1})")
 
 
 def _check_base64(where: str, text: str) -> None:
@@ -301,12 +345,38 @@ def _check_base64(where: str, text: str) -> None:
         raise ValueError(f"{where}: not base64 text (received {text[:40]!r}...)") from None
 
 
+def _check_plain_json(where: str, value: Any, depth: int = 0) -> None:
+    """Refuse what a JSON column cannot keep or give back: NaN and infinities (not JSON), text holding NUL
+    or unpaired surrogates (not UTF-8), and nesting deeper than ``MAX_DEPTH``."""
+    if depth > MAX_DEPTH:
+        raise ValueError(f"{where}: nested deeper than {MAX_DEPTH} levels")
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ValueError(f"{where}: {value} is not a finite number; send null, or the text {str(value)!r}")
+    if isinstance(value, str):
+        _check_text(where, value)
+    elif isinstance(value, list):
+        for position, item in enumerate(value):
+            _check_plain_json(f"{where}[{position}]", item, depth + 1)
+    elif isinstance(value, dict):
+        for key, item in value.items():
+            _check_text(f"{where}, key {key[:40]!r},", key)
+            _check_plain_json(f"{where}[{key[:40]!r}]", item, depth + 1)
+
+
+def _check_text(where: str, text: str) -> None:
+    try:
+        _storable_text(text)
+    except ValueError as error:
+        raise ValueError(f"{where} {error}") from None
+
+
 def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) -> None:
-    for field, limit in (("config", n_configs), ("metric", n_metrics)):
+    for field, target, limit in (("config", "configurations", n_configs), ("metric", "design.metrics", n_metrics)):
         values = getattr(columns, field)
         for position, value in enumerate(values):
             if not 0 <= value < limit:
-                raise ValueError(f"{name}.{field}[{position}]: {value} is out of range (0..{limit - 1})")
+                raise ValueError(f"{name}.{field}[{position}]: {value} is not a position in {target} "
+                                 f"(0..{limit - 1})")
     for position, key in enumerate(zip(columns.repeat, columns.outer_fold, strict=True)):
         if key not in folds:
             raise ValueError(f"{name}.outer_fold[{position}]: repeat {key[0]}, outer fold {key[1]} "
@@ -314,5 +384,5 @@ def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) ->
     if isinstance(columns, InnerScores):
         for position, value in enumerate(columns.inner_fold):
             if not 0 <= value < n_inner_folds:
-                raise ValueError(f"inner_scores.inner_fold[{position}]: {value} is out of range "
-                                 f"(0..{n_inner_folds - 1})")
+                raise ValueError(f"inner_scores.inner_fold[{position}]: {value} is out of range of "
+                                 f"design.n_inner_folds (0..{n_inner_folds - 1})")

@@ -85,6 +85,16 @@ def create_app(settings: Settings) -> FastAPI:
 
     @app.exception_handler(StarletteHTTPException)
     async def http_error(request: Request, error: StarletteHTTPException):
+        cause = error.__cause__
+        if error.status_code == 400 and cause is not None:
+            # FastAPI's answer to a JSON body json.loads could not read: a 422 naming the body, as for
+            # any other body that is not the JSON the route takes.
+            reason = (f"byte {cause.start} is not UTF-8" if isinstance(cause, UnicodeDecodeError)
+                      else "arrays or objects nest too deeply" if isinstance(cause, RecursionError)
+                      else str(cause).split(";")[0])
+            return JSONResponse({"detail": [{"loc": ["body"], "type": "json_invalid",
+                                             "msg": f"the body is not JSON this server can read ({reason}); "
+                                                    "send UTF-8 JSON"}]}, status_code=422)
         if request.url.path.startswith("/api") or "text/html" not in request.headers.get("accept", ""):
             return JSONResponse({"detail": error.detail}, status_code=error.status_code,
                                 headers=getattr(error, "headers", None))
