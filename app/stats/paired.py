@@ -335,9 +335,13 @@ def _verdict(bayes: BayesResult, *, rope: float, constant: bool, names: tuple[st
         if p >= _DECISIVE:
             return (f"{winner} better than {loser} by more than the ROPE with probability "
                     f"{_floor_probability(p)} {at_rope}")
-    return (f"the data do not decide {at_rope}: P({a} better) = {_floor_probability(bayes.p_a)}, "
-            f"P(practically equivalent) = {_floor_probability(bayes.p_rope)}, "
-            f"P({b} better) = {_floor_probability(bayes.p_b)}")
+    return (f"the data do not decide {at_rope}: P({a} better) {_relation(bayes.p_a)}, "
+            f"P(practically equivalent) {_relation(bayes.p_rope)}, P({b} better) {_relation(bayes.p_b)}")
+
+
+def _relation(p: float) -> str:
+    shown = _floor_probability(p)
+    return shown if shown[0] in "<>" else f"= {shown}"
 
 
 def _floor_probability(p: float) -> str:
