@@ -19,6 +19,7 @@ from foldwise.payload import AssessmentPayload
 from foldwise.settings import config_dir_from, spool_dir_from
 
 CREATED, STORED, SPOOLED = "created", "already stored", "spooled"
+_PIECE = 1 << 20  # bytes per write of a push's body
 
 
 class PushRejected(Exception):
@@ -82,14 +83,15 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
 
 
 def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
-    headers = {"content-type": "application/json"}
+    data = body.encode()
+    headers = {"content-type": "application/json", "content-length": str(len(data))}
     token = token or _write_key()
     if token:
         headers["authorization"] = f"Bearer {token}"
     endpoint = url.rstrip("/") + "/api/assessments"
     for attempt in range(retries):
         try:
-            response = httpx.post(endpoint, content=body, headers=headers, timeout=timeout)
+            response = httpx.post(endpoint, content=_pieces(data), headers=headers, timeout=timeout)
         except httpx.TransportError:
             if attempt == retries - 1:
                 raise
@@ -104,6 +106,13 @@ def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
             raise httpx.TransportError(f"server error {response.status_code}")
         raise PushRejected(response.status_code, _detail(response))
     raise ValueError(f"retries must be at least 1, got {retries}")
+
+
+def _pieces(data: bytes):
+    """The body in pieces of ``_PIECE`` bytes: handed one large body, httpx copies what each socket send
+    leaves over, which for a payload of hundreds of MB takes longer than the server's whole work."""
+    for start in range(0, len(data), _PIECE):
+        yield data[start:start + _PIECE]
 
 
 def _write_key() -> str | None:

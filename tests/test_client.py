@@ -7,6 +7,7 @@ from uuid import uuid4
 import httpx
 import pytest
 
+from foldwise import client
 from foldwise.client import CREATED, SPOOLED, STORED, PushRejected, push, resend
 from foldwise.store import load_payload, make_engine
 
@@ -29,6 +30,17 @@ def test_push_to_a_real_server_reads_back_identical(live_server, small_assessmen
     assert body["name"] == small_assessment.name
     engine = make_engine(f"sqlite:///{live_server.db_path}")
     assert load_payload(engine, small_assessment.uuid) == small_assessment.payload
+    engine.dispose()
+
+
+def test_a_body_sent_in_many_pieces_arrives_whole(live_server, small_assessment, monkeypatch):
+    # Large pushes go out in pieces; shrink the piece so this small one is sent as dozens of them.
+    monkeypatch.setattr(client, "_PIECE", 1000)
+    payload = small_assessment.payload.model_copy(update={"name": "sent in pieces", "uuid": uuid4()})
+    assert len(payload.model_dump_json()) > 50 * client._PIECE
+    assert push(payload, live_server.url) == CREATED
+    engine = make_engine(f"sqlite:///{live_server.db_path}")
+    assert load_payload(engine, payload.uuid) == payload
     engine.dispose()
 
 

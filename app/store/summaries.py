@@ -22,6 +22,10 @@ def inner_summary_columns(repeat: Sequence[int], outer_fold: Sequence[int], conf
 
     Returns columns ``KEYS`` plus ``inner_mean`` and ``inner_std``, None where undefined.
     """
+    given = (repeat, outer_fold, config, metric, score)
+    lengths = {name: len(column) for name, column in zip((*KEYS, "score"), given, strict=True)}
+    if len(set(lengths.values())) > 1:
+        raise ValueError(f"inner score columns must have one length; received lengths {lengths}")
     keys = [np.asarray(column, dtype=np.int64) for column in (repeat, outer_fold, config, metric)]
     scores = np.asarray(score, dtype=float)  # None becomes NaN
     if scores.size == 0:

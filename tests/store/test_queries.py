@@ -177,3 +177,31 @@ def test_list_assessments_newest_first_with_case_insensitive_filters(engine, mak
     assert uuids(name="%") == [str(a.uuid)]  # a literal percent sign, not a wildcard
     assert uuids(name="n_s") == []           # nor is an underscore ("knn search" has "n s")
     assert list_assessments(engine, name="nothing like it").empty
+
+
+def test_winners_on_another_metric_equal_winners_frame_on_that_metric(engine, stored):
+    inner, outer = frames.inner_frame(stored), frames.outer_frame(stored)
+    other = stored.design.metrics[1]
+    assert_frame_equal(winners_for(engine, stored.uuid, metric=other),
+                       frames.winners_frame(inner, outer, other))
+    assert_frame_equal(family_winners_for(engine, stored.uuid, metric=other),
+                       frames.winners_frame(inner, outer, other, flag="family_winner"))
+
+
+def test_outer_scores_of_one_metric_or_of_the_winners_are_those_rows_of_the_whole_frame(engine, stored):
+    whole = frames.outer_frame(stored)
+    metric = stored.design.metrics[1]
+    for options, keep in [({"metric": metric}, whole["metric"] == metric),
+                          ({"winners": "family"}, whole["family_winner"]),
+                          ({"metric": metric, "winners": "overall"}, (whole["metric"] == metric)
+                           & whole["overall_winner"])]:
+        assert keep.any() and not keep.all()
+        assert_frame_equal(outer_scores_for(engine, stored.uuid, **options),
+                           whole[keep].reset_index(drop=True))
+
+
+def test_an_unknown_metric_or_kind_of_winner_is_refused_naming_the_choices(engine, stored):
+    with pytest.raises(ValueError, match=r"metric 'r2' was not recorded .*\['accuracy', 'neg_log_loss'\]"):
+        winners_for(engine, stored.uuid, metric="r2")
+    with pytest.raises(ValueError, match=r"winners must be 'family' or 'overall' .*received 'best'"):
+        outer_scores_for(engine, stored.uuid, winners="best")

@@ -44,8 +44,8 @@ def expected_counts(*payloads) -> dict[str, int]:
              "outer_scores": lambda p: len(p.outer_scores.score),
              "fold_choices": lambda p: len(p.family_winners) + len(p.overall_winners),
              "predictions": lambda p: len(p.predictions), "failures": lambda p: len(p.failures),
-             "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0, "ensemble_members": lambda p: 0,
-             "inner_summaries": _summary_count}
+             "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0,
+             "ensemble_members": lambda p: 0, "inner_summaries": _summary_count}
     return {name: sum(sizes[name](p) for p in payloads) for name in TABLES}
 
 
