@@ -49,5 +49,10 @@ pg-stop:
 
 test: browser-deps lint unit
 
+# The benchmarks in tests/benchmarks/ (minutes; not part of `make test`). Every script runs; the target
+# fails when any of them missed a target.
+bench: $(VENV)/.installed-test
+	@status=0; for script in tests/benchmarks/bench_*.py; do $(PY) $$script || status=1; done; exit $$status
+
 clean:
 	rm -rf $(VENV) .foldwise build *.egg-info
