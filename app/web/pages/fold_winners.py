@@ -8,9 +8,8 @@ from dataclasses import dataclass
 import pandas as pd
 from fastapi import APIRouter, Request
 
-from foldwise import frames
 from foldwise.payload import Configuration
-from foldwise.store import AssessmentRecord, inner_scores_for, outer_scores_for
+from foldwise.store import AssessmentRecord, family_winners_for, winners_for
 from foldwise.web.charts.stability import choice_bars_figure
 from foldwise.web.context_json import context_json
 from foldwise.web.lookup import metric_or_422, record_or_404
@@ -54,9 +53,8 @@ class FoldWinnersContext:
 def fold_winners_context(engine, uuid: str, *, metric: str | None) -> FoldWinnersContext:
     record = record_or_404(engine, uuid)
     metric = metric_or_422(record, metric)
-    inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
-    overall = frames.winners_frame(inner, outer, metric)
-    per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
+    overall = winners_for(engine, uuid, metric=metric)
+    per_family = family_winners_for(engine, uuid, metric=metric)
     families = [family.name for family in record.families]
     colours = family_colours(families)
     design = record.design

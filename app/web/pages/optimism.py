@@ -11,7 +11,13 @@ from fastapi import APIRouter, Request
 from foldwise import frames
 from foldwise.stats.agreement import rank_agreement
 from foldwise.stats.summaries import optimism_summary, score_summary
-from foldwise.store import AssessmentRecord, inner_scores_for, outer_scores_for
+from foldwise.store import (
+    AssessmentRecord,
+    family_winners_for,
+    inner_scores_for,
+    outer_scores_for,
+    winners_for,
+)
 from foldwise.web.charts.optimism import optimism_figure
 from foldwise.web.context_json import context_json
 from foldwise.web.lookup import metric_or_422, record_or_404
@@ -47,9 +53,8 @@ class OptimismContext:
 def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "overall") -> OptimismContext:
     record = record_or_404(engine, uuid)
     metric = metric_or_422(record, metric)
-    inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid)
-    overall = frames.winners_frame(inner, outer, metric)
-    per_family = frames.winners_frame(inner, outer, metric, flag="family_winner")
+    overall = winners_for(engine, uuid, metric=metric)
+    per_family = family_winners_for(engine, uuid, metric=metric)
     families = [family.name for family in record.families]
     summaries = [{"label": "overall winner", "family": None, **_optimism(overall)}]
     if level == "family":
@@ -61,6 +66,8 @@ def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "ove
     elif len(record.configurations) < 3:
         message = AGREEMENT_NEEDS_THREE.format(n=len(record.configurations))
     else:
+        # Every configuration's inner mean against its outer score: only this needs all inner scores.
+        inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid, metric=metric)
         every = frames.winners_frame(inner, outer.assign(every=True), metric, flag="every")
         agreement = [_agreement(int(repeat), int(outer_fold), fold)
                      for (repeat, outer_fold), fold in every.groupby(["repeat", "outer_fold"])]
