@@ -3,25 +3,16 @@
 from __future__ import annotations
 
 import pytest
+from watching import open_watched  # tests/web/watching.py: pytest puts this folder on sys.path
 
 from foldwise.client import save
 
 pytestmark = pytest.mark.browser
 
 
-def _open(browser, url):
-    page = browser.new_page()
-    problems = []
-    page.on("console", lambda message: problems.append(message.text) if message.type == "error" else None)
-    page.on("pageerror", lambda error: problems.append(str(error)))
-    response = page.goto(url, wait_until="load")
-    assert response.status == 200
-    return page, problems
-
-
 def test_index_and_assessment_page_render_cleanly(browser, live_server, small_assessment):
     save(small_assessment.payload, str(live_server.db_path))
-    page, problems = _open(browser, live_server.url + "/")
+    page, problems = open_watched(browser, live_server.url + "/")
     link = page.get_by_role("link", name=small_assessment.name)
     assert link.count() == 1
     assert page.locator(".caution").is_visible()

@@ -6,6 +6,7 @@ import pytest
 from sklearn.datasets import load_breast_cancer
 from sklearn.model_selection import RepeatedStratifiedKFold
 from sklearn.tree import DecisionTreeClassifier
+from watching import open_watched  # tests/web/watching.py: pytest puts this folder on sys.path
 
 import foldwise
 from foldwise.client import save
@@ -41,12 +42,7 @@ def stored(live_server, small_assessment):
 
 
 def _open(browser, url):
-    page = browser.new_page()
-    problems = []
-    page.on("console", lambda message: problems.append(message.text) if message.type == "error" else None)
-    page.on("pageerror", lambda error: problems.append(str(error)))
-    response = page.goto(url, wait_until="load")
-    assert response.status == 200, url
+    page, problems = open_watched(browser, url)
     page.wait_for_function(ALL_DRAWN, timeout=15_000)
     return page, problems
 

@@ -13,6 +13,7 @@ from sklearn.naive_bayes import GaussianNB
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier
+from watching import open_watched  # tests/web/watching.py: pytest puts this folder on sys.path
 
 import foldwise
 from foldwise.client import save
@@ -44,12 +45,7 @@ def stored(live_server):
 
 
 def _open(browser, url, charts):
-    page = browser.new_page()
-    problems = []
-    page.on("console", lambda message: problems.append(message.text) if message.type == "error" else None)
-    page.on("pageerror", lambda error: problems.append(str(error)))
-    response = page.goto(url, wait_until="load")
-    assert response.status == 200
+    page, problems = open_watched(browser, url)
     if charts:
         _wait_for_charts(page, charts)
     assert page.locator(".chart").count() == charts

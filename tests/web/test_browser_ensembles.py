@@ -15,6 +15,7 @@ from sklearn.neighbors import KNeighborsClassifier
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier
+from watching import open_watched  # tests/web/watching.py: pytest puts this folder on sys.path
 
 import foldwise
 from foldwise.client import save
@@ -36,16 +37,6 @@ def three_families():
                               n_jobs=1, progress=False, name="three families for the builder")
 
 
-def _open(context, url):
-    page = context.new_page()
-    problems = []
-    page.on("console", lambda message: problems.append(message.text) if message.type == "error" else None)
-    page.on("pageerror", lambda error: problems.append(str(error)))
-    response = page.goto(url, wait_until="load")
-    assert response.status == 200
-    return page, problems
-
-
 def _settled(page, n_members: int) -> None:
     page.wait_for_function(
         "n => { const b = document.querySelector('#ensemble-builder');"
@@ -65,7 +56,7 @@ def test_tick_three_see_the_estimate_follow_save_reload_and_download_the_spec(br
     context = browser.new_context(accept_downloads=True)
     started = time.monotonic()
     # The link `foldwise serve` prints carries the write key once; saving needs it.
-    page, problems = _open(context, f"{live_server.url}/assessments/{uuid}?key={live_server.write_key}")
+    page, problems = open_watched(context, f"{live_server.url}/assessments/{uuid}?key={live_server.write_key}")
     assert "key=" not in page.url
     boxes = page.locator("input.ensemble-tick")
     assert boxes.count() == 3 * (1 + 3)  # per outer fold: the overall winner and each family's winner
@@ -99,7 +90,7 @@ def test_tick_three_see_the_estimate_follow_save_reload_and_download_the_spec(br
 
     # The draft is in the query string: a copied URL shows the same ensemble.
     assert parse_qs(urlparse(page.url).query)["member"] == chosen
-    copy, copy_problems = _open(context, page.url)
+    copy, copy_problems = open_watched(context, page.url)
     _settled(copy, 3)
     shown = page.locator(f"{BUILDER} [data-estimate]").inner_text()
     assert copy.locator(f"{BUILDER} [data-estimate]").inner_text() == shown
