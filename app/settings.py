@@ -14,21 +14,20 @@ class Settings:
     db_url: str
     host: str = "127.0.0.1"
     port: int = 8000
-    spool_dir: Path | None = None  # None: $FOLDWISE_SPOOL or ~/.local/state/foldwise/spool
     config_dir: Path | None = None  # None: $FOLDWISE_CONFIG or ~/.config/foldwise (holds keys.json)
     require_read_key: bool = False  # always on when bound to an address other than loopback
     max_body_bytes: int = 1 << 30
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides) -> Settings:
-        """``FOLDWISE_DB`` (path or SQLAlchemy URL), ``FOLDWISE_HOST``, ``FOLDWISE_PORT``, ``FOLDWISE_SPOOL``,
+        """``FOLDWISE_DB`` (path or SQLAlchemy URL), ``FOLDWISE_HOST``, ``FOLDWISE_PORT``,
         ``FOLDWISE_CONFIG``, ``FOLDWISE_REQUIRE_READ_KEY`` (1 to require), ``FOLDWISE_MAX_BODY_MB``."""
         from foldwise.store import db_url_from, default_db_url
 
         environ = os.environ if environ is None else environ
         settings = cls(
             db_url=default_db_url(environ), host=environ.get("FOLDWISE_HOST", "127.0.0.1"),
-            port=int(environ.get("FOLDWISE_PORT", "8000")), spool_dir=spool_dir_from(environ),
+            port=int(environ.get("FOLDWISE_PORT", "8000")),
             config_dir=config_dir_from(environ),
             require_read_key=environ.get("FOLDWISE_REQUIRE_READ_KEY", "") in ("1", "true", "yes"),
             max_body_bytes=int(float(environ.get("FOLDWISE_MAX_BODY_MB", "1024")) * (1 << 20)))
