@@ -49,7 +49,7 @@ def push(payload: AssessmentPayload, url: str, *, token: str | None = None, retr
     Returns ``"created"``, ``"already stored"`` or, when the server could not be reached after
     ``retries`` attempts, ``"spooled"`` (with a warning naming the spool file).
     """
-    body = payload.model_dump_json()
+    body = payload.packed_json()
     try:
         return _send(body, url, token=token, retries=retries, backoff=backoff, timeout=timeout)
     except httpx.TransportError as error:

@@ -1,7 +1,8 @@
 """The one description of an assessment: what the runner builds, the client sends and the store keeps.
 
 Scores travel as columns (one list per field) with configurations and metrics referred to by their
-position, so an assessment of hundreds of thousands of inner scores stays a compact JSON document.
+position, so an assessment of hundreds of thousands of inner scores stays a compact JSON document;
+from schema version 2 a column may also travel packed (``foldwise.packed``), as the client sends it.
 Outer-test predictions travel as base64 of little-endian float64, one block per (outer fold,
 configuration). Estimators travel as base64 of skops files (``skops.io.dumps``), which a loader can
 refuse type by type.
@@ -18,9 +19,20 @@ from typing import Annotated, Any, Literal
 from uuid import UUID, uuid4
 
 import numpy as np
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, FiniteFloat, field_validator, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    FiniteFloat,
+    PrivateAttr,
+    field_validator,
+    model_validator,
+)
 
-SCHEMA_VERSION = 1
+from foldwise.packed import PACKED, FloatColumn, IntColumn
+
+SCHEMA_VERSION = 2  # 2 added packed score columns; a version 1 document is read as it always was
 
 # The largest count an INTEGER column holds on every backend (PostgreSQL's is 32-bit).
 MAX_COUNT = 2**31 - 1
@@ -97,13 +109,13 @@ class OuterFold(_Strict):
 
 
 class _ScoreColumns(_Strict):
-    repeat: list[int]
-    outer_fold: list[int]
-    config: list[int] = Field(description="position in `configurations`")
-    metric: list[int] = Field(description="position in `design.metrics`")
-    score: list[float | None] = Field(description="null for a failed fit")
-    fit_time: list[float | None]
-    score_time: list[float | None]
+    repeat: IntColumn
+    outer_fold: IntColumn
+    config: IntColumn = Field(description="position in `configurations`")
+    metric: IntColumn = Field(description="position in `design.metrics`")
+    score: FloatColumn = Field(description="null for a failed fit")
+    fit_time: FloatColumn
+    score_time: FloatColumn
 
     def __len__(self) -> int:
         return len(self.score)
@@ -114,14 +126,16 @@ class _ScoreColumns(_Strict):
         if len(set(lengths.values())) > 1:
             raise ValueError(f"columns differ in length: {lengths}")
         for name in ("score", "fit_time", "score_time"):
-            for position, value in enumerate(getattr(self, name)):
-                if value is not None and not math.isfinite(value):
-                    raise ValueError(f"{name}[{position}] is {value}; use null for a failed fit")
+            values = getattr(self, name)
+            # None becomes NaN here, so only the few non-finite positions need a second look
+            for position in np.flatnonzero(~np.isfinite(np.array(values, dtype=float))):
+                if values[position] is not None:
+                    raise ValueError(f"{name}[{position}] is {values[position]}; use null for a failed fit")
         return self
 
 
 class InnerScores(_ScoreColumns):
-    inner_fold: list[int]
+    inner_fold: IntColumn
 
 
 class OuterScores(_ScoreColumns):
@@ -143,10 +157,8 @@ class Prediction(_Strict):
     kind: Literal["proba", "decision", "predict"]
     n_columns: int = Field(ge=1)
     data: str = Field(description="base64 of little-endian float64, row-major (n_test, n_columns)")
-
     def array(self) -> np.ndarray:
-        values = np.frombuffer(base64.b64decode(self.data), dtype="<f8")
-        return values.reshape(-1, self.n_columns)
+        return np.frombuffer(base64.b64decode(self.data), dtype="<f8").reshape(-1, self.n_columns)
 
     @classmethod
     def from_array(cls, values: np.ndarray, **fields) -> Prediction:
@@ -178,7 +190,7 @@ class Failure(_Strict):
 class AssessmentPayload(_Strict):
     """A complete nested cross-validation, as pushed to `POST /api/assessments`."""
 
-    schema_version: Literal[1] = SCHEMA_VERSION
+    schema_version: Literal[1, 2] = SCHEMA_VERSION
     uuid: UUID = Field(default_factory=uuid4)
     name: Text = Field(min_length=1, max_length=200)
     dataset: Text | None = Field(default=None, max_length=200)
@@ -197,6 +209,8 @@ class AssessmentPayload(_Strict):
     versions: dict[str, str] = Field(default_factory=dict)
     seeds: dict[str, Any] = Field(default_factory=dict)
     total_fit_time: float = Field(default=0.0, ge=0, allow_inf_nan=False)
+    # the predictions' bytes as the consistency check decoded them, beside the texts they came from
+    _decoded: tuple[list[str], list[bytes]] = PrivateAttr(default=([], []))
 
     @field_validator("created_at")
     @classmethod
@@ -212,11 +226,24 @@ class AssessmentPayload(_Strict):
 
     @model_validator(mode="after")
     def _consistent(self):
-        _check_consistency(self)
+        self._decoded = ([p.data for p in self.predictions], _check_consistency(self))
         return self
 
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
+
+    def prediction_bytes(self) -> list[bytes]:
+        """Each prediction's ``data`` decoded, once: validation already did it, unless a block changed since."""
+        texts, raw = self._decoded
+        if len(texts) != len(self.predictions) or any(text is not prediction.data for text, prediction
+                                                       in zip(texts, self.predictions, strict=True)):
+            raw = [base64.b64decode(p.data) for p in self.predictions]
+            self._decoded = ([p.data for p in self.predictions], raw)
+        return raw
+
+    def packed_json(self) -> str:
+        """The JSON document with its score columns packed: what the client sends."""
+        return self.model_dump_json(context=PACKED)
 
 
 def outer_fingerprint(n_samples: int, folds: list[OuterFold]) -> str:
@@ -250,8 +277,11 @@ def _json_safe(value: Any) -> Any:
     return repr(value)
 
 
-def _check_consistency(payload: AssessmentPayload) -> None:
-    """Refuse references that point nowhere, naming the JSON path of the first problem."""
+def _check_consistency(payload: AssessmentPayload) -> list[bytes]:
+    """Refuse references that point nowhere, naming the JSON path of the first problem.
+
+    Gives back the predictions' bytes, decoded on the way (the store needs them too).
+    """
     design = payload.design
     n_configs, n_metrics = len(payload.configurations), len(design.metrics)
     family_names = [family.name for family in payload.families]
@@ -289,11 +319,13 @@ def _check_consistency(payload: AssessmentPayload) -> None:
         for position, choice in enumerate(getattr(payload, name)):
             _check_reference(f"{name}[{position}]", choice, folds, n_configs)
 
+    decoded = []
     for position, prediction in enumerate(payload.predictions):
         where = f"predictions[{position}]"
         _check_reference(where, prediction, folds, n_configs)
         try:
-            size = len(base64.b64decode(prediction.data, validate=False))
+            decoded.append(base64.b64decode(prediction.data, validate=False))
+            size = len(decoded[-1])
         except ValueError:
             raise ValueError(f"{where}.data: not base64 text (received {prediction.data[:40]!r}...)") from None
         n_test = len(folds[(prediction.repeat, prediction.outer_fold)].test_indices)
@@ -320,6 +352,7 @@ def _check_consistency(payload: AssessmentPayload) -> None:
             raise ValueError(f"{where}: repeat {model.repeat}, outer fold {model.outer_fold}, config "
                              f"{model.config} appears twice")
         kept.add((model.repeat, model.outer_fold, model.config))
+    return decoded
 
 
 def _refuse_duplicates(where: str, names: list[str]) -> None:
@@ -371,18 +404,32 @@ def _check_text(where: str, text: str) -> None:
 
 
 def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) -> None:
+    """Every row's references in range; numpy finds the first row that is not, for the message."""
     for field, target, limit in (("config", "configurations", n_configs), ("metric", "design.metrics", n_metrics)):
-        values = getattr(columns, field)
-        for position, value in enumerate(values):
-            if not 0 <= value < limit:
-                raise ValueError(f"{name}.{field}[{position}]: {value} is not a position in {target} "
-                                 f"(0..{limit - 1})")
-    for position, key in enumerate(zip(columns.repeat, columns.outer_fold, strict=True)):
-        if key not in folds:
-            raise ValueError(f"{name}.outer_fold[{position}]: repeat {key[0]}, outer fold {key[1]} "
-                             f"is not in outer_folds")
+        values = _int_array(getattr(columns, field))
+        if len(outside := np.flatnonzero((values < 0) | (values >= limit))):
+            raise ValueError(f"{name}.{field}[{outside[0]}]: {values[outside[0]]} is not a position in {target} "
+                             f"(0..{limit - 1})")
+    repeats, outer_folds = _int_array(columns.repeat), _int_array(columns.outer_fold)
+    # (repeat, outer fold) as one number: folds' repeats stay below MAX_COUNT, so it fits int64
+    width = 1 + max(o for _, o in folds)
+    fold_keys = np.array([r * width + o for r, o in folds], dtype=np.int64)
+    known = (repeats >= 0) & (repeats <= MAX_COUNT) & (outer_folds >= 0) & (outer_folds < width)
+    keys = repeats[known].astype(np.int64) * width + outer_folds[known].astype(np.int64)
+    known[known] = np.isin(keys, fold_keys)
+    if len(unknown := np.flatnonzero(~known)):
+        raise ValueError(f"{name}.outer_fold[{unknown[0]}]: repeat {repeats[unknown[0]]}, outer fold "
+                         f"{outer_folds[unknown[0]]} is not in outer_folds")
     if isinstance(columns, InnerScores):
-        for position, value in enumerate(columns.inner_fold):
-            if not 0 <= value < n_inner_folds:
-                raise ValueError(f"inner_scores.inner_fold[{position}]: {value} is out of range of "
-                                 f"design.n_inner_folds (0..{n_inner_folds - 1})")
+        values = _int_array(columns.inner_fold)
+        if len(outside := np.flatnonzero((values < 0) | (values >= n_inner_folds))):
+            raise ValueError(f"inner_scores.inner_fold[{outside[0]}]: {values[outside[0]]} is out of range of "
+                             f"design.n_inner_folds (0..{n_inner_folds - 1})")
+
+
+def _int_array(values: list[int]) -> np.ndarray:
+    """The column as int64, or as Python integers when one is too large for int64 (still comparable)."""
+    try:
+        return np.asarray(values, dtype=np.int64)
+    except OverflowError:
+        return np.asarray(values, dtype=object)

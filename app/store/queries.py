@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import Connection, Engine, Row, Table, and_, select, tuple_
+from sqlalchemy import Connection, Engine, Row, Table, and_, or_, select, tuple_
 
 from foldwise import frames
 from foldwise.payload import Configuration, Design, Family
@@ -87,15 +88,29 @@ def inner_scores_for(engine: Engine, uuid: str, *, repeat: int | None = None,
         return inner_frame(connection, row, repeat=repeat, outer_fold=outer_fold)
 
 
-def outer_scores_for(engine: Engine, uuid: str, *, metric: str | None = None,
-                     winners: str | None = None) -> pd.DataFrame:
+def outer_scores_for(engine: Engine, uuid: str, *, metric: str | None = None, winners: str | None = None,
+                     configs: Sequence[str] = ()) -> pd.DataFrame:
     """Outer scores (columns ``frames.OUTER_COLUMNS``) in payload order, with fold sizes and winners.
 
-    Every score, or only those of one ``metric`` and, with ``winners="family"`` or ``"overall"``, only
-    the rows of that kind of fold winner.
+    Every score, or only those of one ``metric`` and, with ``winners="family"``, ``"overall"`` or
+    ``"either"``, only the rows of that kind of fold winner, plus those of the configuration ids in
+    ``configs``: a page that compares fold winners reads a few hundred rows, not every score.
     """
     with engine.connect() as connection:
-        return outer_frame(connection, require_assessment(connection, uuid), metric=metric, winners=winners)
+        return outer_frame(connection, require_assessment(connection, uuid), metric=metric, winners=winners,
+                           configs=configs)
+
+
+def fold_sizes_for(engine: Engine, uuid: str) -> pd.DataFrame:
+    """One row per stored outer fold, in (repeat, outer_fold) order: ``n_train`` and ``n_test``, indexed by
+    (repeat, outer_fold), as ``fold_scores.fold_sizes`` lays them out."""
+    o = tables.outer_folds
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        rows = connection.execute(select(o.c.repeat, o.c.outer_fold, o.c.n_train, o.c.n_test)
+                                  .where(o.c.assessment_id == row.id).order_by(o.c.repeat, o.c.outer_fold)).all()
+    sizes = pd.DataFrame(rows, columns=["repeat", "outer_fold", "n_train", "n_test"], dtype="int64")
+    return sizes.set_index(["repeat", "outer_fold"])
 
 
 def winners_for(engine: Engine, uuid: str, *, metric: str | None = None) -> pd.DataFrame:
@@ -157,12 +172,13 @@ def inner_frame(connection: Connection, row: Row, *, repeat: int | None = None, 
     return _name_configs(connection, row, frame)[frames.INNER_COLUMNS]
 
 
-def outer_frame(connection: Connection, row: Row, *, metric: str | None = None,
-                winners: str | None = None) -> pd.DataFrame:
+def outer_frame(connection: Connection, row: Row, *, metric: str | None = None, winners: str | None = None,
+                configs: Sequence[str] = ()) -> pd.DataFrame:
     s, o = tables.outer_scores, tables.outer_folds
     where = [] if metric is None else [s.c.metric == _metric_position(row, metric)]
     if winners is not None:
-        where.append(_chosen(s, row, winners))
+        chosen = _chosen(s, row, winners)
+        where.append(or_(chosen, _among(s, row, configs)) if configs else chosen)
     query = (select(s.c.repeat, s.c.outer_fold, *_score_columns(s), o.c.n_train, o.c.n_test)
              .join(o, and_(o.c.assessment_id == s.c.assessment_id, o.c.repeat == s.c.repeat,
                            o.c.outer_fold == s.c.outer_fold))
@@ -203,13 +219,22 @@ def _winners(engine: Engine, uuid: str, *, kind: str, metric: str | None) -> pd.
 
 
 def _chosen(table: Table, row: Row, kind: str):
-    """Rows of ``table`` whose (repeat, outer_fold, config) is a fold winner of ``kind``."""
-    if kind not in ("family", "overall"):
-        raise ValueError(f"winners must be 'family' or 'overall' (or None for every row); received {kind!r}")
+    """Rows of ``table`` whose (repeat, outer_fold, config) is a fold winner of ``kind`` (or of either)."""
+    if kind not in ("family", "overall", "either"):
+        raise ValueError(f"winners must be 'family', 'overall' or 'either' (or None for every row); "
+                         f"received {kind!r}")
     ch = tables.fold_choices
-    chosen = select(ch.c.repeat, ch.c.outer_fold, ch.c.config).where(ch.c.assessment_id == row.id,
-                                                                      ch.c.kind == kind)
+    chosen = select(ch.c.repeat, ch.c.outer_fold, ch.c.config).where(ch.c.assessment_id == row.id)
+    if kind != "either":
+        chosen = chosen.where(ch.c.kind == kind)
     return tuple_(table.c.repeat, table.c.outer_fold, table.c.config).in_(chosen)
+
+
+def _among(table: Table, row: Row, configs: Sequence[str]):
+    """Rows of ``table`` of the configurations with these ids."""
+    c = tables.configurations
+    return table.c.config.in_(select(c.c.position).where(c.c.assessment_id == row.id,
+                                                         c.c.config_id.in_(list(configs))))
 
 
 def _metric_position(row: Row, metric: str | None) -> int:

@@ -15,8 +15,8 @@ from fastapi import HTTPException
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, outer_folds_for, outer_scores_for, predictions_for
-from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
+from foldwise.store import AssessmentRecord, fold_sizes_for, outer_folds_for, outer_scores_for, predictions_for
+from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.lookup import metric_or_422
 from foldwise.web.serialise import plain
 
@@ -36,13 +36,14 @@ def ensemble_estimate(engine, record: AssessmentRecord, members: list[str], *, m
     scored = score_ensemble(_fold_members(engine, record, members), task=design.task, metrics=design.metrics,
                             classes=design.classes)
     metric, metric_note = _metric(design.metrics, scored.unavailable, metric)
-    outer = outer_scores_for(engine, record.uuid, metric=metric)  # every view below reads this one metric
-    sizes = fold_sizes(outer)
+    # Every view below reads this one metric, and only the rows of fold winners and of the members.
+    outer = outer_scores_for(engine, record.uuid, metric=metric, winners="either", configs=members)
+    sizes = fold_sizes_for(engine, record.uuid)
     mine = (scored.scores[scored.scores["metric"] == metric].set_index(["repeat", "outer_fold"])["score"]
             .reindex(sizes.index))
-    selection = overall_fold_scores(outer, metric)
+    selection = overall_fold_scores(outer, metric, folds=sizes.index)
     best = str(frames.family_summary(outer, metric)["family"].iloc[0])
-    best_scores = family_fold_scores(outer, metric, [best])[best]
+    best_scores = family_fold_scores(outer, metric, [best], folds=sizes.index)[best]
     try:
         comparison = compare_paired(mine.to_numpy(), selection.to_numpy(),
                                     n_train=sizes["n_train"].to_numpy(), n_test=sizes["n_test"].to_numpy(),

@@ -19,23 +19,29 @@ def fold_sizes(outer: pd.DataFrame) -> pd.DataFrame:
     return sizes.sort_values(FOLD_KEYS).set_index(FOLD_KEYS)
 
 
-def family_fold_scores(outer: pd.DataFrame, metric: str, families: list[str]) -> pd.DataFrame:
-    """Each family's fold winner's outer score: one row per outer fold, one column per family."""
+def family_fold_scores(outer: pd.DataFrame, metric: str, families: list[str], *,
+                       folds: pd.Index | None = None) -> pd.DataFrame:
+    """Each family's fold winner's outer score: one row per outer fold, one column per family.
+
+    The rows are ``folds`` (a (repeat, outer_fold) index, as ``store.fold_sizes_for`` gives it) or, by
+    default, the folds ``outer`` has rows of.
+    """
     rows = outer[(outer["metric"] == metric) & outer["family_winner"]]
-    return _table(rows, "family", families, fold_sizes(outer).index)
+    return _table(rows, "family", families, fold_sizes(outer).index if folds is None else folds)
 
 
-def config_fold_scores(outer: pd.DataFrame, metric: str, configs: list[str]) -> pd.DataFrame:
+def config_fold_scores(outer: pd.DataFrame, metric: str, configs: list[str], *,
+                       folds: pd.Index | None = None) -> pd.DataFrame:
     """Each configuration's own outer score (refit on every outer fold): one column per configuration id."""
     rows = outer[outer["metric"] == metric]
-    return _table(rows, "config", configs, fold_sizes(outer).index)
+    return _table(rows, "config", configs, fold_sizes(outer).index if folds is None else folds)
 
 
-def overall_fold_scores(outer: pd.DataFrame, metric: str) -> pd.Series:
+def overall_fold_scores(outer: pd.DataFrame, metric: str, *, folds: pd.Index | None = None) -> pd.Series:
     """The overall fold winner's outer score on each outer fold: the selection procedure's scores."""
     rows = outer[(outer["metric"] == metric) & outer["overall_winner"]]
     scores = rows.set_index(FOLD_KEYS)["score"]
-    return scores.reindex(fold_sizes(outer).index).astype(float)
+    return scores.reindex(fold_sizes(outer).index if folds is None else folds).astype(float)
 
 
 def fold_pairs(a: pd.Series, b: pd.Series) -> list[dict]:

@@ -15,6 +15,7 @@ from foldwise.store import (
     AssessmentNotFound,
     failures_for,
     family_winners_for,
+    fold_sizes_for,
     get_assessment,
     inner_scores_for,
     insert_assessment,
@@ -194,7 +195,11 @@ def test_outer_scores_of_one_metric_or_of_the_winners_are_those_rows_of_the_whol
     for options, keep in [({"metric": metric}, whole["metric"] == metric),
                           ({"winners": "family"}, whole["family_winner"]),
                           ({"metric": metric, "winners": "overall"}, (whole["metric"] == metric)
-                           & whole["overall_winner"])]:
+                           & whole["overall_winner"]),
+                          ({"winners": "either"}, whole["family_winner"] | whole["overall_winner"]),
+                          ({"metric": metric, "winners": "overall", "configs": [whole["config"].iloc[-1]]},
+                           (whole["metric"] == metric) & (whole["overall_winner"]
+                                                          | (whole["config"] == whole["config"].iloc[-1])))]:
         assert keep.any() and not keep.all()
         assert_frame_equal(outer_scores_for(engine, stored.uuid, **options),
                            whole[keep].reset_index(drop=True))
@@ -203,5 +208,13 @@ def test_outer_scores_of_one_metric_or_of_the_winners_are_those_rows_of_the_whol
 def test_an_unknown_metric_or_kind_of_winner_is_refused_naming_the_choices(engine, stored):
     with pytest.raises(ValueError, match=r"metric 'r2' was not recorded .*\['accuracy', 'neg_log_loss'\]"):
         winners_for(engine, stored.uuid, metric="r2")
-    with pytest.raises(ValueError, match=r"winners must be 'family' or 'overall' .*received 'best'"):
+    with pytest.raises(ValueError, match=r"winners must be 'family', 'overall' or 'either' .*received 'best'"):
         outer_scores_for(engine, stored.uuid, winners="best")
+
+
+def test_fold_sizes_are_one_row_per_stored_outer_fold_as_the_whole_frame_gives_them(engine, stored):
+    whole = frames.outer_frame(stored)
+    expected = (whole[["repeat", "outer_fold", "n_train", "n_test"]].drop_duplicates(["repeat", "outer_fold"])
+                .sort_values(["repeat", "outer_fold"]).set_index(["repeat", "outer_fold"]))
+    assert_frame_equal(fold_sizes_for(engine, stored.uuid), expected)
+    assert len(expected) == len(stored.outer_folds)

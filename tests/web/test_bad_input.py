@@ -170,7 +170,7 @@ def _bad_base64(data, doc):
 
 
 def _schema_version(data, doc):
-    doc["schema_version"] = data.draw(st.sampled_from([0, 2, -1, "1", 1.5, None, [1], 2**64]))
+    doc["schema_version"] = data.draw(st.sampled_from([0, 3, -1, "1", 1.5, None, [1], 2**64]))
     return "schema_version"
 
 

@@ -9,9 +9,9 @@ from fastapi import APIRouter, HTTPException, Request
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
-from foldwise.store import AssessmentRecord, outer_scores_for
+from foldwise.store import AssessmentRecord, fold_sizes_for, outer_scores_for
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
-from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs, fold_sizes
+from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
@@ -51,7 +51,8 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
                               rope: float) -> PairedComparisonContext:
     record = record_or_404(engine, uuid)
     metric = metric_or_422(record, metric)
-    outer = outer_scores_for(engine, uuid, metric=metric)  # every view below reads this one metric
+    # Every view below reads this one metric, and only the fold winners' rows and those of the two sides.
+    outer = outer_scores_for(engine, uuid, metric=metric, winners="either", configs=[v for v in (a, b) if v])
     families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
     configurations = [Candidate(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")
@@ -59,8 +60,8 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
     a, b = _defaults(outer, metric, [family.value for family in families], a or None, b or None)
     first, second = (_candidate(record, families, configurations, value, side)
                      for value, side in ((a, "a"), (b, "b")))
-    scores_a, scores_b = _scores(outer, metric, first), _scores(outer, metric, second)
-    sizes = fold_sizes(outer)
+    sizes = fold_sizes_for(engine, uuid)
+    scores_a, scores_b = (_scores(outer, metric, side, sizes.index) for side in (first, second))
     try:
         result = compare_paired(scores_a.to_numpy(), scores_b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
                                 n_test=sizes["n_test"].to_numpy(), rope=rope,
@@ -128,7 +129,7 @@ def _candidate(record: AssessmentRecord, families: list[Candidate], configuratio
                              f"choose one of the {known}")
 
 
-def _scores(outer: pd.DataFrame, metric: str, candidate: Candidate) -> pd.Series:
+def _scores(outer: pd.DataFrame, metric: str, candidate: Candidate, folds: pd.Index) -> pd.Series:
     if candidate.kind == "family":
-        return family_fold_scores(outer, metric, [candidate.value])[candidate.value]
-    return config_fold_scores(outer, metric, [candidate.value])[candidate.value]
+        return family_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]
+    return config_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]
