@@ -82,8 +82,8 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
     return outcomes
 
 
-def _send(body: str, url: str, *, token, retries, backoff, timeout) -> str:
-    data = body.encode()
+def _send(body: bytes | str, url: str, *, token, retries, backoff, timeout) -> str:
+    data = body.encode() if isinstance(body, str) else body
     headers = {"content-type": "application/json", "content-length": str(len(data))}
     token = token or _write_key()
     if token:
@@ -134,7 +134,7 @@ def _spool_dir(spool_dir) -> Path:
     return Path(spool_dir) if spool_dir is not None else spool_dir_from(os.environ)
 
 
-def _spool(body: str, url: str, uuid, spool_dir) -> Path:
+def _spool(body: bytes, url: str, uuid, spool_dir) -> Path:
     folder = _spool_dir(spool_dir)
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / f"{uuid}.json"

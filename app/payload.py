@@ -26,6 +26,7 @@ from pydantic import (
     Field,
     FiniteFloat,
     PrivateAttr,
+    TypeAdapter,
     field_validator,
     model_validator,
 )
@@ -241,9 +242,12 @@ class AssessmentPayload(_Strict):
             self._decoded = ([p.data for p in self.predictions], raw)
         return raw
 
-    def packed_json(self) -> str:
-        """The JSON document with its score columns packed: what the client sends."""
-        return self.model_dump_json(context=PACKED)
+    def packed_json(self) -> bytes:
+        """The UTF-8 JSON document with its score columns packed: what the client sends."""
+        return _PAYLOAD.dump_json(self, context=PACKED)  # bytes at once: no copy of a large str to encode
+
+
+_PAYLOAD = TypeAdapter(AssessmentPayload)
 
 
 def outer_fingerprint(n_samples: int, folds: list[OuterFold]) -> str:

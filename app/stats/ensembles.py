@@ -191,14 +191,22 @@ def score_combined(combined: np.ndarray, y_true, *, voting: str, metric: str, cl
     >>> score_combined(proba, [0, 1, 1], voting="soft", metric="accuracy", classes=[0, 1])
     0.6666666666666666
     """
+    return _score_with(_scorer(metric), combined, y_true, voting=voting, classes=classes)
+
+
+def _scorer(metric: str):
     if metric not in get_scorer_names():
         raise ValueError(f"metric {metric!r} is not a scikit-learn scorer name; see "
                          f"sklearn.metrics.get_scorer_names()")
+    return get_scorer(metric)  # a fresh copy of the scorer each call: get it once per metric
+
+
+def _score_with(scorer, combined: np.ndarray, y_true, *, voting: str, classes) -> float:
     y_true = np.asarray(y_true)
     if len(y_true) != len(combined):
         raise ValueError(f"{len(y_true)} true targets for {len(combined)} predicted rows")
     stand_in = {"soft": _SoftVotes, "hard": _HardVotes, "mean": _MeanPrediction}[voting](combined, classes)
-    return float(get_scorer(metric)(stand_in, np.zeros((len(combined), 1)), y_true))
+    return float(scorer(stand_in, np.zeros((len(combined), 1)), y_true))
 
 
 def score_ensemble(folds: Sequence[FoldMembers], *, task: str, metrics: Sequence[str],
@@ -261,14 +269,13 @@ def score_ensemble(folds: Sequence[FoldMembers], *, task: str, metrics: Sequence
 def _scored_metric(folds, combined: dict, metric: str, *, voting: str, classes, unavailable: dict) -> list[tuple]:
     """One metric's (repeat, outer_fold, metric, score) rows; none, and a reason in ``unavailable``, when no
     fold could be scored with it."""
-    scores, errors = [], []
+    scores, errors, scorer = [], [], _scorer(metric)
     for fold in folds:
         key = (fold.repeat, fold.outer_fold)
         score = np.nan
         if key in combined:
             try:
-                score = score_combined(combined[key], fold.y_true, voting=voting, metric=metric,
-                                       classes=classes)
+                score = _score_with(scorer, combined[key], fold.y_true, voting=voting, classes=classes)
             except (AttributeError, TypeError, ValueError) as error:
                 errors.append(_reason(metric, voting, error))
         scores.append((*key, metric, score))

@@ -1,6 +1,6 @@
 """The store: assessments kept in any SQLAlchemy database (SQLite by default), read back as frames."""
 
-from foldwise.store.engine import db_url_from, default_db_url, make_engine
+from foldwise.store.engine import checkpoint, db_url_from, default_db_url, make_engine
 from foldwise.store.ensembles import (
     EnsembleRecord,
     StoredModel,
@@ -26,7 +26,13 @@ from foldwise.store.queries import (
     outer_scores_for,
     winners_for,
 )
-from foldwise.store.restore import StoredPrediction, load_payload, outer_folds_for, predictions_for
+from foldwise.store.restore import (
+    StoredPrediction,
+    fold_targets_for,
+    load_payload,
+    outer_folds_for,
+    predictions_for,
+)
 from foldwise.store.writes import delete_assessment, insert_assessment
 
 __all__ = [
@@ -35,6 +41,7 @@ __all__ = [
     "EnsembleRecord",
     "StoredModel",
     "StoredPrediction",
+    "checkpoint",
     "db_url_from",
     "default_db_url",
     "delete_assessment",
@@ -46,6 +53,7 @@ __all__ = [
     "family_estimators_for",
     "family_winners_for",
     "fold_sizes_for",
+    "fold_targets_for",
     "fitted_model_counts",
     "fitted_models_for",
     "get_assessment",

@@ -17,6 +17,7 @@ from sqlalchemy import Connection, Engine, create_engine, event, func, make_url,
 _MIGRATIONS = Path(__file__).parent / "migrations"
 # busy_timeout first, so that switching a fresh file to WAL waits for a concurrent opener instead of failing.
 _SQLITE_PRAGMAS = ("busy_timeout=30000", "journal_mode=WAL", "foreign_keys=ON", "synchronous=NORMAL")
+_AUTOCHECKPOINT_PAGES = 1000  # SQLite's own default, restored after a deferred checkpoint
 _WRITE_LOCK = "foldwise_write_lock"
 _MIGRATION_LOCK = 0x666F6C6477697365  # "foldwise" in ASCII: the key of PostgreSQL's advisory lock
 
@@ -76,17 +77,38 @@ def make_engine(url: str) -> Engine:
 
 
 @contextmanager
-def write_transaction(engine: Engine) -> Iterator[Connection]:
+def write_transaction(engine: Engine, *, defer_checkpoint: bool = False) -> Iterator[Connection]:
     """A connection in a transaction that commits on success, on SQLite holding the write lock from its start.
 
     There the transaction begins IMMEDIATE, so two writers queue (within the busy timeout) instead
     of one failing when it turns from reading to writing. PostgreSQL needs no such lock: its row locks
     and unique constraints let writers run side by side.
+
+    With ``defer_checkpoint`` the commit on SQLite leaves the write-ahead log for ``checkpoint`` to copy
+    into the database file later (committed and readable at once all the same), instead of copying it
+    there and then: for a large assessment that copy is a second write of every page.
     """
     with engine.connect() as connection:
         connection.execution_options(**{_WRITE_LOCK: True})
-        with connection.begin():
-            yield connection
+        sqlite = connection.connection.driver_connection if engine.dialect.name == "sqlite" else None
+        if defer_checkpoint and sqlite is not None:
+            sqlite.execute("PRAGMA wal_autocheckpoint=0")
+        try:
+            with connection.begin():
+                yield connection
+        finally:
+            if defer_checkpoint and sqlite is not None:
+                sqlite.execute(f"PRAGMA wal_autocheckpoint={_AUTOCHECKPOINT_PAGES}")
+
+
+def checkpoint(engine: Engine) -> None:
+    """Copy what the SQLite write-ahead log holds into the database file, waiting for no reader or writer
+    (a PASSIVE checkpoint: what a reader still needs stays in the log for the next one). Nothing to do on
+    other backends."""
+    if engine.dialect.name != "sqlite":
+        return
+    with engine.connect() as connection:
+        connection.connection.driver_connection.execute("PRAGMA wal_checkpoint(PASSIVE)")
 
 
 def _prepare_sqlite_connection(dbapi_connection, _record) -> None:

@@ -41,21 +41,38 @@ def outer_folds_for(engine: Engine, uuid: str) -> list[OuterFold]:
         return _outer_folds(connection, require_assessment(connection, uuid).id)
 
 
+def fold_targets_for(engine: Engine, uuid: str) -> list[tuple[int, int, list | None]]:
+    """(repeat, outer_fold, true targets of its test rows or None) per outer fold, in payload order: what
+    scoring predictions needs of the folds, without their test indices."""
+    o = tables.outer_folds
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        return [tuple(fold) for fold in connection.execute(
+            select(o.c.repeat, o.c.outer_fold, o.c.y_true).where(o.c.assessment_id == row.id)
+            .order_by(o.c.position)).all()]
+
+
 def predictions_for(engine: Engine, uuid: str, *, configs: list[str] | None = None) -> list[StoredPrediction]:
     """The outer-test predictions in payload order, of every configuration or of the ids in ``configs``."""
     p, c = tables.predictions, tables.configurations
+    query = (select(p.c.position, p.c.repeat, p.c.outer_fold, c.c.config_id, p.c.kind, p.c.n_columns, p.c.data)
+             .join(c, and_(c.c.assessment_id == p.c.assessment_id, c.c.position == p.c.config)))
     with engine.connect() as connection:
         row = require_assessment(connection, uuid)
-        where = [p.c.assessment_id == row.id]
-        if configs is not None:
+        query = query.where(p.c.assessment_id == row.id)
+        if configs is None:
+            query = query.order_by(p.c.position)
+        else:
             _refuse_unknown_configs(connection, row, configs)
-            where.append(c.c.config_id.in_(configs))
-        rows = connection.execute(
-            select(p.c.repeat, p.c.outer_fold, c.c.config_id, p.c.kind, p.c.n_columns, p.c.data)
-            .join(c, and_(c.c.assessment_id == p.c.assessment_id, c.c.position == p.c.config))
-            .where(*where).order_by(p.c.position)).all()
-    return [StoredPrediction(repeat=r, outer_fold=o, config=config, kind=kind,
-                             values=_floats(data, n_columns)) for r, o, config, kind, n_columns, data in rows]
+            # Ordered here, not by the query: ORDER BY position would lead SQLite to walk every block of
+            # the assessment in that order rather than take the few it needs by the configuration index.
+            query = query.where(p.c.config.in_(select(c.c.position).where(c.c.assessment_id == row.id,
+                                                                            c.c.config_id.in_(configs))))
+        rows = connection.execute(query).all()
+    if configs is not None:
+        rows.sort(key=lambda stored: stored.position)
+    return [StoredPrediction(repeat=r, outer_fold=o, config=config, kind=kind, values=_floats(data, n_columns))
+            for _, r, o, config, kind, n_columns, data in rows]
 
 
 def load_payload(engine: Engine, uuid: str) -> AssessmentPayload | None:

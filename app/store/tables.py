@@ -151,6 +151,7 @@ predictions = _child(
     Column("kind", String(10), nullable=False),
     Column("n_columns", Integer, nullable=False),
     Column("data", LargeBinary, nullable=False, comment="little-endian float64, row-major"),
+    Index(None, "assessment_id", "config"),  # an ensemble's members' blocks without reading the rest
 )
 
 failures = _child(

@@ -22,15 +22,16 @@ from foldwise.store.summaries import inner_summary_columns
 _CHUNK = 20_000  # rows per executemany: bounded memory for an assessment of any size
 
 
-def insert_assessment(engine: Engine, payload: AssessmentPayload) -> bool:
+def insert_assessment(engine: Engine, payload: AssessmentPayload, *, defer_checkpoint: bool = False) -> bool:
     """Store ``payload``; True when newly stored, False when its uuid is already in the store.
 
     All rows go in one transaction, so no reader ever sees half an assessment. The assessment row
     goes first: the uuid's unique constraint then settles a race between two writers of one
-    assessment (the second waits for the first and finds the uuid taken), on any backend.
+    assessment (the second waits for the first and finds the uuid taken), on any backend. With
+    ``defer_checkpoint``, see ``write_transaction``: the caller runs ``checkpoint`` afterwards.
     """
     try:
-        with write_transaction(engine) as connection:
+        with write_transaction(engine, defer_checkpoint=defer_checkpoint) as connection:
             assessment_id = connection.execute(
                 insert(tables.assessments).values(**_assessment_row(payload))).inserted_primary_key[0]
             _insert_children(connection, assessment_id, payload)

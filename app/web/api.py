@@ -4,12 +4,13 @@ from __future__ import annotations
 
 from typing import Literal
 
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, BackgroundTasks, Query, Request
 from fastapi.responses import JSONResponse, Response
 from sqlalchemy import text
 
 from foldwise.payload import AssessmentPayload
 from foldwise.store import (
+    checkpoint,
     family_winners_for,
     inner_scores_for,
     insert_assessment,
@@ -25,9 +26,15 @@ router = APIRouter(prefix="/api")
 
 
 @router.post("/assessments", status_code=201, responses={200: {"description": "already stored"}})
-def push_assessment(request: Request, payload: AssessmentPayload):
-    """Store one assessment, in one transaction; pushing the same uuid again changes nothing (200)."""
-    created = insert_assessment(request.app.state.engine, payload)
+def push_assessment(request: Request, payload: AssessmentPayload, background: BackgroundTasks):
+    """Store one assessment, in one transaction; pushing the same uuid again changes nothing (200).
+
+    The answer goes out once the assessment is committed; copying SQLite's write-ahead log into the
+    database file follows it, so the client does not wait for a second write of every page.
+    """
+    engine = request.app.state.engine
+    created = insert_assessment(engine, payload, defer_checkpoint=True)
+    background.add_task(checkpoint, engine)
     body = {"uuid": str(payload.uuid), "created": created,
             "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}
     return JSONResponse(body, status_code=201 if created else 200)

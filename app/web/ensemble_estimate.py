@@ -15,7 +15,7 @@ from fastapi import HTTPException
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, fold_sizes_for, outer_folds_for, outer_scores_for, predictions_for
+from foldwise.store import AssessmentRecord, fold_sizes_for, fold_targets_for, outer_scores_for, predictions_for
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.lookup import metric_or_422
 from foldwise.web.serialise import plain
@@ -94,15 +94,15 @@ def _fold_members(engine, record: AssessmentRecord, members: list[str]) -> list:
         raise HTTPException(422, f"members {without} have no stored outer-test predictions (the run kept "
                                  f"none, or every outer fit of them failed), so no ensemble with them can be "
                                  f"scored")
-    folds = sorted(outer_folds_for(engine, record.uuid), key=lambda fold: (fold.repeat, fold.outer_fold))
-    if any(fold.y_true is None for fold in folds):
+    folds = sorted(fold_targets_for(engine, record.uuid))
+    if any(y_true is None for _, _, y_true in folds):
         raise HTTPException(422, "this assessment stored no true targets of its outer test folds, so an "
                                  "ensemble cannot be scored from its predictions")
     result = []
-    for fold in folds:
-        keys = [(fold.repeat, fold.outer_fold, member) for member in members]
+    for repeat, outer_fold, y_true in folds:
+        keys = [(repeat, outer_fold, member) for member in members]
         predictions = [stored[key] for key in keys] if all(key in stored for key in keys) else None
-        result.append(FoldMembers(fold.repeat, fold.outer_fold, fold.y_true, predictions))
+        result.append(FoldMembers(repeat, outer_fold, y_true, predictions))
     return result
 
 

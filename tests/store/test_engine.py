@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import base64
+import shutil
 import sqlite3
 import threading
 from pathlib import Path
 
+import numpy as np
 import pytest
 from alembic.autogenerate import compare_metadata
 from alembic.config import Config
@@ -15,7 +18,17 @@ from sqlalchemy import inspect
 from sqlalchemy.exc import IntegrityError
 
 import foldwise.store
-from foldwise.store import db_url_from, default_db_url, insert_assessment, load_payload, make_engine, tables
+from foldwise.payload import AssessmentPayload
+from foldwise.store import (
+    checkpoint,
+    db_url_from,
+    default_db_url,
+    insert_assessment,
+    list_assessments,
+    load_payload,
+    make_engine,
+    tables,
+)
 
 
 def revisions(connection) -> list[str]:
@@ -51,7 +64,7 @@ def test_make_engine_twice_on_one_store_migrates_once_and_shares_the_data(store_
     assert insert_assessment(first, payload)
     assert load_payload(second, payload.uuid) == payload
     with second.connect() as connection:
-        assert revisions(connection) == ["0003"]
+        assert revisions(connection) == ["0004"]
     first.dispose()
     second.dispose()
 
@@ -128,6 +141,59 @@ def test_several_engines_opening_a_fresh_store_at_once_all_succeed(store_url):
         thread.join()
     assert errors == []
     with engines[0].connect() as connection:
-        assert revisions(connection) == ["0003"]
+        assert revisions(connection) == ["0004"]
     for engine in engines:
         engine.dispose()
+
+
+def _main_file_only(path: Path, copy: Path) -> int:
+    """Assessments in the database file alone, without its write-ahead log: what a checkpoint has copied."""
+    shutil.copyfile(path, copy)
+    raw = sqlite3.connect(copy)
+    try:
+        return raw.execute("SELECT count(*) FROM assessments").fetchone()[0]
+    finally:
+        raw.close()
+
+
+def _large(payload: AssessmentPayload, n_columns: int = 4_000) -> AssessmentPayload:
+    """The payload with predictions of ``n_columns`` columns: several MB, past SQLite's 1000-page checkpoint."""
+    fields = payload.model_dump()
+    n_test = {(f.repeat, f.outer_fold): len(f.test_indices) for f in payload.outer_folds}
+    for prediction in fields["predictions"]:
+        values = np.arange(n_test[prediction["repeat"], prediction["outer_fold"]] * n_columns, dtype="<f8")
+        prediction |= {"n_columns": n_columns, "data": base64.b64encode(values.tobytes()).decode("ascii")}
+    return AssessmentPayload.model_validate(fields)
+
+
+@pytest.mark.parametrize("deferred", [False, True])
+def test_a_deferred_checkpoint_commits_at_once_and_reaches_the_file_at_the_checkpoint(tmp_path, make_payload,
+                                                                                       deferred):
+    path = tmp_path / "store.db"
+    engine = make_engine(f"sqlite:///{path}")
+    try:
+        checkpoint(engine)  # the schema into the file
+        payload = _large(make_payload())
+        insert_assessment(engine, payload, defer_checkpoint=deferred)
+        reader = make_engine(f"sqlite:///{path}")
+        assert len(list_assessments(reader)) == 1  # committed: another reader sees it at once
+        reader.dispose()
+        # SQLite's own checkpoint copies a log this long at the commit; deferred, the copy waits for checkpoint()
+        assert _main_file_only(path, tmp_path / "before.db") == (0 if deferred else 1)
+        checkpoint(engine)
+        assert _main_file_only(path, tmp_path / "after.db") == 1
+        with engine.connect() as connection:  # the pooled connection checkpoints on its own again
+            assert connection.exec_driver_sql("PRAGMA wal_autocheckpoint").scalar() == 1000
+        assert load_payload(engine, str(payload.uuid)) == payload
+    finally:
+        engine.dispose()
+
+
+def test_a_push_answers_before_the_checkpoint_and_the_checkpoint_follows(open_client, tmp_path, small_assessment):
+    path = tmp_path / "pushed.db"
+    with open_client(f"sqlite:///{path}") as client:
+        # TestClient returns once the request's background tasks ran: the checkpoint among them.
+        response = client.post("/api/assessments", content=small_assessment.payload.packed_json(),
+                               headers={"content-type": "application/json"})
+        assert response.status_code == 201
+        assert _main_file_only(path, tmp_path / "copy.db") == 1
