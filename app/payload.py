@@ -233,6 +233,13 @@ class AssessmentPayload(_Strict):
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
 
+    def __eq__(self, other: object) -> bool:
+        # The fields alone: the decoded-predictions cache is no part of the assessment (a model_copy
+        # carries its original's, which prediction_bytes then finds stale and replaces).
+        if type(other) is not type(self):
+            return NotImplemented
+        return self.__dict__ == other.__dict__
+
     def prediction_bytes(self) -> list[bytes]:
         """Each prediction's ``data`` decoded, once: validation already did it, unless a block changed since."""
         texts, raw = self._decoded

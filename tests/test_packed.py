@@ -119,3 +119,11 @@ def test_a_packed_reference_out_of_range_is_refused_naming_the_row(client, small
     response = client.post("/api/assessments", content=body, headers=JSON)
     assert response.status_code == 422
     assert "inner_scores.config[3]: 99 is not a position in configurations" in response.text
+
+
+def test_a_copy_with_other_predictions_gives_their_bytes_and_equals_its_stored_form(small_assessment):
+    payload = small_assessment.payload
+    payload.prediction_bytes()
+    fewer = payload.model_copy(update={"predictions": payload.predictions[1:]})
+    assert fewer.prediction_bytes() == [base64.b64decode(p.data) for p in payload.predictions[1:]]
+    assert AssessmentPayload.model_validate_json(fewer.packed_json()) == fewer != payload
