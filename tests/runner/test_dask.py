@@ -79,4 +79,7 @@ def test_x_and_y_reach_each_worker_once_for_the_whole_run(client, space, cancer)
     scattered = [sorted(log["scattered"]) for log in received.values()]
     assert len(scattered) == 2 and scattered[0] == scattered[1]
     assert len(scattered[0]) == 2 and all(key.startswith("ndarray-") for key in scattered[0])  # X and y
-    assert all(log["fetched"] == [] for log in received.values())
+    # ... and no worker fetched them from the other. (A task the scheduler moved under load may fetch its
+    # own small arguments; those are not the data.)
+    fetched = {key for log in received.values() for key in log["fetched"]}
+    assert not fetched & set(scattered[0]), received
