@@ -14,9 +14,10 @@ import binascii
 from typing import Annotated, Any
 
 import numpy as np
-from pydantic import PlainSerializer, SerializationInfo, WithJsonSchema, WrapValidator
+from pydantic import PlainSerializer, SerializationInfo, ValidationInfo, WithJsonSchema, WrapValidator
 
 PACKED = {"packed": True}  # the serialisation context that packs score columns
+TAIL = "tail"  # context key: a TailWriter when writing a packed body, its tail (a memoryview) when reading
 
 _INT_TYPES = {"int32": "<i4", "int64": "<i8"}
 _FLOAT_TYPES = {"float64": "<f8"}
@@ -90,3 +91,84 @@ IntColumn = Annotated[list[int], WrapValidator(_ints), PlainSerializer(_pack_int
                       _schema({"type": "integer"})]
 FloatColumn = Annotated[list[float | None], WrapValidator(_floats), PlainSerializer(_pack_floats),
                         _schema({"anyOf": [{"type": "number"}, {"type": "null"}]})]
+
+
+
+class TailWriter:
+    """Collects prediction blocks for the tail of a packed body, handing back where each one lies."""
+
+    def __init__(self):
+        self.blocks: list[bytes] = []
+        self.size = 0
+
+    def add(self, block: bytes) -> dict[str, int]:
+        reference = {"offset": self.size, "size": len(block)}
+        self.blocks.append(block)
+        self.size += len(block)
+        return reference
+
+
+class TailReader:
+    """Hands out the blocks of a packed body's tail by reference, noting which bytes were taken."""
+
+    def __init__(self, tail: memoryview):
+        self.tail, self.taken = tail, []
+
+    def take(self, reference: dict) -> bytes:
+        offset, size = reference.get("offset"), reference.get("size")
+        # One test for the usual case (a body holds tens of thousands of blocks), the reasons after it.
+        if not (len(reference) == 2 and type(offset) is int and type(size) is int and 0 <= offset
+                and 0 <= size and offset + size <= len(self.tail)):
+            raise ValueError(self._refusal(reference))
+        self.taken.append((offset, size))
+        return self.tail[offset:offset + size].tobytes()
+
+    def _refusal(self, reference: dict) -> str:
+        offset, size = reference.get("offset"), reference.get("size")
+        if set(reference) != {"offset", "size"}:
+            return f"a block holds exactly the keys 'offset' and 'size', received {sorted(reference)}"
+        if not all(type(n) is int and n >= 0 for n in (offset, size)):
+            return f"offset and size must be whole numbers from 0, received {offset!r} and {size!r}"
+        return f"bytes {offset}..{offset + size} lie past the end of the body's tail ({len(self.tail)} bytes)"
+
+    def untiled(self) -> str | None:
+        """Why the blocks taken do not cover the tail once each, one after another; None when they do."""
+        end = 0
+        for position, (offset, size) in enumerate(self.taken):
+            if offset != end:
+                return (f"predictions[{position}].data starts at byte {offset} of the tail, where byte {end} "
+                        "was next: the blocks follow one another in payload order")
+            end += size
+        if end != len(self.tail):
+            return f"the tail holds {len(self.tail)} bytes, the predictions' blocks {end}"
+        return None
+
+
+def _blob(value: Any, handler, info: ValidationInfo) -> bytes:
+    """A prediction block's bytes: base64 text in a JSON document, a reference into the tail of a packed
+    body (``foldwise.wire``), or bytes as they are from Python."""
+    if isinstance(value, dict):
+        tail = (info.context or {}).get(TAIL)
+        if not isinstance(tail, TailReader):
+            raise ValueError("a reference {'offset', 'size'} into the tail of a packed body, but this is a "
+                             "JSON document; send the block as base64 text")
+        return tail.take(value)
+    if isinstance(value, bytes | bytearray | memoryview):
+        return bytes(value)
+    if isinstance(value, str):
+        try:
+            return base64.b64decode(value, validate=False)  # as lenient as the JSON form always was
+        except (binascii.Error, ValueError):
+            raise ValueError(f"not base64 text (received {value[:40]!r}...)") from None
+    return handler(value)  # pydantic's own refusal of anything else
+
+
+def _blob_out(value: bytes, info: SerializationInfo) -> bytes | str | dict[str, int]:
+    if not info.mode_is_json():
+        return value
+    tail = (info.context or {}).get(TAIL)
+    return tail.add(value) if isinstance(tail, TailWriter) else base64.b64encode(value).decode("ascii")
+
+
+Blob = Annotated[bytes, WrapValidator(_blob), PlainSerializer(_blob_out),
+                 WithJsonSchema({"type": "string", "contentEncoding": "base64"})]

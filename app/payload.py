@@ -25,13 +25,12 @@ from pydantic import (
     ConfigDict,
     Field,
     FiniteFloat,
-    PrivateAttr,
     TypeAdapter,
     field_validator,
     model_validator,
 )
 
-from foldwise.packed import PACKED, FloatColumn, IntColumn
+from foldwise.packed import PACKED, Blob, FloatColumn, IntColumn
 
 SCHEMA_VERSION = 2  # 2 added packed score columns; a version 1 document is read as it always was
 
@@ -157,17 +156,18 @@ class Prediction(_Strict):
     config: int = Field(ge=0)
     kind: Literal["proba", "decision", "predict"]
     n_columns: int = Field(ge=1)
-    data: str = Field(description="base64 of little-endian float64, row-major (n_test, n_columns)")
+    data: Blob = Field(description="little-endian float64, row-major (n_test, n_columns); in JSON as "
+                                   "base64 text")
+
     def array(self) -> np.ndarray:
-        return np.frombuffer(base64.b64decode(self.data), dtype="<f8").reshape(-1, self.n_columns)
+        return np.frombuffer(self.data, dtype="<f8").reshape(-1, self.n_columns)
 
     @classmethod
     def from_array(cls, values: np.ndarray, **fields) -> Prediction:
         values = np.asarray(values, dtype="<f8")
         if values.ndim == 1:
             values = values[:, None]
-        data = base64.b64encode(np.ascontiguousarray(values).tobytes()).decode("ascii")
-        return cls(n_columns=values.shape[1], data=data, **fields)
+        return cls(n_columns=values.shape[1], data=np.ascontiguousarray(values).tobytes(), **fields)
 
 
 class FittedModel(_Strict):
@@ -210,8 +210,6 @@ class AssessmentPayload(_Strict):
     versions: dict[str, str] = Field(default_factory=dict)
     seeds: dict[str, Any] = Field(default_factory=dict)
     total_fit_time: float = Field(default=0.0, ge=0, allow_inf_nan=False)
-    # the predictions' bytes as the consistency check decoded them, beside the texts they came from
-    _decoded: tuple[list[str], list[bytes]] = PrivateAttr(default=([], []))
 
     @field_validator("created_at")
     @classmethod
@@ -227,27 +225,11 @@ class AssessmentPayload(_Strict):
 
     @model_validator(mode="after")
     def _consistent(self):
-        self._decoded = ([p.data for p in self.predictions], _check_consistency(self))
+        _check_consistency(self)
         return self
 
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
-
-    def __eq__(self, other: object) -> bool:
-        # The fields alone: the decoded-predictions cache is no part of the assessment (a model_copy
-        # carries its original's, which prediction_bytes then finds stale and replaces).
-        if type(other) is not type(self):
-            return NotImplemented
-        return self.__dict__ == other.__dict__
-
-    def prediction_bytes(self) -> list[bytes]:
-        """Each prediction's ``data`` decoded, once: validation already did it, unless a block changed since."""
-        texts, raw = self._decoded
-        if len(texts) != len(self.predictions) or any(text is not prediction.data for text, prediction
-                                                       in zip(texts, self.predictions, strict=True)):
-            raw = [base64.b64decode(p.data) for p in self.predictions]
-            self._decoded = ([p.data for p in self.predictions], raw)
-        return raw
 
     def packed_json(self) -> bytes:
         """The UTF-8 JSON document with its score columns packed: what the client sends."""
@@ -288,11 +270,8 @@ def _json_safe(value: Any) -> Any:
     return repr(value)
 
 
-def _check_consistency(payload: AssessmentPayload) -> list[bytes]:
-    """Refuse references that point nowhere, naming the JSON path of the first problem.
-
-    Gives back the predictions' bytes, decoded on the way (the store needs them too).
-    """
+def _check_consistency(payload: AssessmentPayload) -> None:
+    """Refuse references that point nowhere, naming the JSON path of the first problem."""
     design = payload.design
     n_configs, n_metrics = len(payload.configurations), len(design.metrics)
     family_names = [family.name for family in payload.families]
@@ -330,15 +309,10 @@ def _check_consistency(payload: AssessmentPayload) -> list[bytes]:
         for position, choice in enumerate(getattr(payload, name)):
             _check_reference(f"{name}[{position}]", choice, folds, n_configs)
 
-    decoded = []
     for position, prediction in enumerate(payload.predictions):
         where = f"predictions[{position}]"
         _check_reference(where, prediction, folds, n_configs)
-        try:
-            decoded.append(base64.b64decode(prediction.data, validate=False))
-            size = len(decoded[-1])
-        except ValueError:
-            raise ValueError(f"{where}.data: not base64 text (received {prediction.data[:40]!r}...)") from None
+        size = len(prediction.data)
         n_test = len(folds[(prediction.repeat, prediction.outer_fold)].test_indices)
         if size != n_test * prediction.n_columns * 8:
             raise ValueError(f"{where}.data: holds {size // 8} float64 values, expected "
@@ -363,7 +337,6 @@ def _check_consistency(payload: AssessmentPayload) -> list[bytes]:
             raise ValueError(f"{where}: repeat {model.repeat}, outer fold {model.outer_fold}, config "
                              f"{model.config} appears twice")
         kept.add((model.repeat, model.outer_fold, model.config))
-    return decoded
 
 
 def _refuse_duplicates(where: str, names: list[str]) -> None:

@@ -100,8 +100,7 @@ def _payload(connection: Connection, row: Row) -> AssessmentPayload:
         inner_scores=InnerScores(**_columns(connection, tables.inner_scores, row.id)),
         outer_scores=OuterScores(**_columns(connection, tables.outer_scores, row.id)),
         family_winners=choices("family"), overall_winners=choices("overall"),
-        predictions=[Prediction(repeat=r, outer_fold=o, config=c, kind=kind, n_columns=n_columns,
-                                data=base64.b64encode(data).decode("ascii"))
+        predictions=[Prediction(repeat=r, outer_fold=o, config=c, kind=kind, n_columns=n_columns, data=data)
                      for r, o, c, kind, n_columns, data in rows(p, tables.payload_fields(p))],
         failures=[Failure(**failure._mapping) for failure in rows(f, tables.payload_fields(f))],
         models=[FittedModel(repeat=r, outer_fold=o, config=c, skops=_text(data))

@@ -119,7 +119,7 @@ def _insert_children(connection: Connection, assessment_id: int, payload: Assess
             | {"kind": [kind] * len(choices)})
     predictions = payload.predictions
     put(tables.predictions, _fields(predictions, ["repeat", "outer_fold", "config", "kind", "n_columns"])
-        | {"data": payload.prediction_bytes()})
+        | {"data": [p.data for p in predictions]})
     put(tables.fitted_models, _fields(payload.models, ["repeat", "outer_fold", "config"])
         | {"skops": [base64.b64decode(m.skops) for m in payload.models]})
     put(tables.failures, _fields(payload.failures, tables.payload_fields(tables.failures)))

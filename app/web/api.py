@@ -5,74 +5,37 @@ from __future__ import annotations
 from typing import Literal
 
 from fastapi import APIRouter, BackgroundTasks, Query, Request
-from fastapi.concurrency import run_in_threadpool
-from fastapi.responses import JSONResponse, Response
-from fastapi.routing import APIRoute
-from pydantic import ValidationError
+from fastapi.responses import Response
 from sqlalchemy import text
 
 from foldwise.payload import AssessmentPayload
 from foldwise.store import (
-    checkpoint,
     family_winners_for,
     inner_scores_for,
-    insert_assessment,
     outer_scores_for,
     winners_for,
 )
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
+from foldwise.web.push import OPENAPI, PushRoute, stored
 from foldwise.web.serialise import records, to_csv
 
 router = APIRouter(prefix="/api")
 
 
-class _PushRoute(APIRoute):
-    """The push route, where pydantic reads a valid body straight from its bytes.
-
-    Read as FastAPI reads any body (``json.loads`` into Python objects, then validated), an assessment
-    of 600,000 inner scores spends about twice as long before the store sees it. A body pydantic
-    refuses, or one not sent as JSON, takes FastAPI's own way after all, so that every rejection is the
-    usual 422 naming the JSON path of the problem.
-    """
-
-    def get_route_handler(self):
-        usual = super().get_route_handler()
-
-        async def handler(request: Request) -> Response:
-            if request.headers.get("content-type", "").split(";")[0].strip() != "application/json":
-                return await usual(request)
-            try:
-                payload = await run_in_threadpool(AssessmentPayload.model_validate_json, await request.body())
-            except ValidationError:
-                return await usual(request)  # the body is kept: FastAPI reads it from memory
-            background = BackgroundTasks()
-            response = await run_in_threadpool(_stored, request, payload, background)
-            response.background = background
-            return response
-
-        return handler
-
-
 def push_assessment(request: Request, payload: AssessmentPayload, background: BackgroundTasks):
-    """Store one assessment, in one transaction; pushing the same uuid again changes nothing (200)."""
-    return _stored(request, payload, background)
+    """Store one assessment, in one transaction; pushing the same uuid again changes nothing (200).
+
+    The body is JSON (score columns as lists or packed) or a packed body (``foldwise.wire``), as
+    ``foldwise.push`` sends it.
+    """
+    return stored(request, payload, background)
 
 
 router.add_api_route("/assessments", push_assessment, methods=["POST"], status_code=201,
-                     responses={200: {"description": "already stored"}}, route_class_override=_PushRoute)
-
-
-def _stored(request: Request, payload: AssessmentPayload, background: BackgroundTasks) -> JSONResponse:
-    """Store ``payload`` and answer once it is committed; copying SQLite's write-ahead log into the
-    database file follows the answer, so the client does not wait for a second write of every page."""
-    engine = request.app.state.engine
-    created = insert_assessment(engine, payload, defer_checkpoint=True)
-    background.add_task(checkpoint, engine)
-    body = {"uuid": str(payload.uuid), "created": created,
-            "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}
-    return JSONResponse(body, status_code=201 if created else 200)
+                     responses={200: {"description": "already stored"}}, route_class_override=PushRoute,
+                     openapi_extra=OPENAPI)
 
 
 @router.get("/assessments")

@@ -18,7 +18,6 @@ predictions of every configuration for 5,000 samples. It is also built at 1/10 (
 
 from __future__ import annotations
 
-import base64
 import math
 import sqlite3
 import sys
@@ -64,7 +63,7 @@ def plain_sqlite_s(payload: AssessmentPayload, path: Path) -> float:
                                  outer.config, outer.metric, outer.score, outer.fit_time, outer.score_time,
                                  strict=True)),
         "predictions": [(1, i, p.repeat, p.outer_fold, p.config, p.kind, p.n_columns,
-                         base64.b64decode(p.data)) for i, p in enumerate(payload.predictions)],
+                         p.data) for i, p in enumerate(payload.predictions)],
     }
     connection = sqlite3.connect(path)
     connection.executescript(_BASELINE_SCHEMA)

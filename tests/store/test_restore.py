@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import base64
 from datetime import UTC, datetime
 
 import numpy as np
@@ -83,7 +82,7 @@ def test_predictions_come_back_bit_exact(engine, make_payload):
         assert kept.config == payload.configurations[sent.config].id
         assert kept.values.dtype == np.float64
         assert kept.values.shape == (len(payload.outer_folds[0].test_indices), 2)
-        assert kept.values.tobytes() == base64.b64decode(sent.data)
+        assert kept.values.tobytes() == sent.data
 
 
 def test_predictions_of_chosen_configurations(engine, make_payload):

@@ -1,0 +1,69 @@
+"""The push route's way in: a packed body, or JSON read by pydantic from its bytes.
+
+Read as FastAPI reads any body (``json.loads`` into Python objects, then validated), an assessment of
+600,000 inner scores spends about twice as long before the store sees it; a packed body
+(``foldwise.wire``) spares both sides the base64 text of its predictions too. A JSON body pydantic
+refuses, or one of another type, takes FastAPI's own way after all, so that every rejection is the
+usual 422 naming the JSON path of the problem.
+"""
+
+from __future__ import annotations
+
+from fastapi import BackgroundTasks, Request
+from fastapi.concurrency import run_in_threadpool
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse, Response
+from fastapi.routing import APIRoute
+from pydantic import ValidationError
+
+from foldwise.payload import AssessmentPayload
+from foldwise.store import checkpoint, insert_assessment
+from foldwise.wire import CONTENT_TYPE, PackedBodyError, read_packed_body
+
+OPENAPI = {"requestBody": {"content": {CONTENT_TYPE: {
+    "schema": {"type": "string", "format": "binary"},
+    "description": "the packed body of foldwise.wire: the JSON header, then the prediction blocks"}}}}
+
+
+class PushRoute(APIRoute):
+    def get_route_handler(self):
+        usual = super().get_route_handler()
+
+        async def handler(request: Request) -> Response:
+            kind = request.headers.get("content-type", "").split(";")[0].strip().lower()
+            if kind == CONTENT_TYPE:
+                payload = await run_in_threadpool(_from_packed, await request.body())
+            elif kind == "application/json":
+                try:
+                    payload = await run_in_threadpool(AssessmentPayload.model_validate_json, await request.body())
+                except ValidationError:
+                    return await usual(request)  # the body is kept: FastAPI reads it from memory
+            else:
+                return await usual(request)
+            background = BackgroundTasks()
+            response = await run_in_threadpool(stored, request, payload, background)
+            response.background = background
+            return response
+
+        return handler
+
+
+def stored(request: Request, payload: AssessmentPayload, background: BackgroundTasks) -> JSONResponse:
+    """Store ``payload`` and answer once it is committed; copying SQLite's write-ahead log into the
+    database file follows the answer, so the client does not wait for a second write of every page."""
+    engine = request.app.state.engine
+    created = insert_assessment(engine, payload, defer_checkpoint=True)
+    background.add_task(checkpoint, engine)
+    body = {"uuid": str(payload.uuid), "created": created,
+            "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}
+    return JSONResponse(body, status_code=201 if created else 200)
+
+
+def _from_packed(body: bytes) -> AssessmentPayload:
+    try:
+        return read_packed_body(body)
+    except ValidationError as error:
+        raise RequestValidationError([{"loc": ("body", *entry["loc"]), "msg": entry["msg"], "type": entry["type"]}
+                                      for entry in error.errors(include_url=False, include_input=False)]) from None
+    except PackedBodyError as error:
+        raise RequestValidationError([{"loc": ("body",), "msg": str(error), "type": "packed_body"}]) from None
