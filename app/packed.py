@@ -5,6 +5,10 @@ read back, and pydantic as long again to check number by number; packed, it is d
 milliseconds and its type is known from its ``dtype``. A packed column is the JSON object
 ``{"dtype": "float64", "data": "<base64>"}``; in a float column NaN stands for null (a failed fit).
 Both forms are accepted everywhere; ``model_dump_json(context=PACKED)`` writes the packed one.
+
+A prediction block (``Blob``) is bytes in memory: base64 text in a JSON document, or a reference
+``{"offset", "size"}`` into the tail of a packed body (``foldwise.wire``), whose readers and writers
+(``TailReader``, ``TailWriter``) travel in the validation or serialisation context.
 """
 
 from __future__ import annotations

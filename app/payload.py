@@ -3,9 +3,9 @@
 Scores travel as columns (one list per field) with configurations and metrics referred to by their
 position, so an assessment of hundreds of thousands of inner scores stays a compact JSON document;
 from schema version 2 a column may also travel packed (``foldwise.packed``), as the client sends it.
-Outer-test predictions travel as base64 of little-endian float64, one block per (outer fold,
-configuration). Estimators travel as base64 of skops files (``skops.io.dumps``), which a loader can
-refuse type by type.
+Outer-test predictions are little-endian float64, one block of bytes per (outer fold, configuration):
+base64 text in JSON, raw bytes after the header of a packed body (``foldwise.wire``). Estimators
+travel as base64 of skops files (``skops.io.dumps``), which a loader can refuse type by type.
 """
 
 from __future__ import annotations
