@@ -489,7 +489,8 @@ def _cli(*args: str, timeout: float = 120) -> subprocess.CompletedProcess:
 
 def test_backup_and_check_while_the_server_takes_pushes(tmp_path, small_assessment, started):
     base = small_assessment.payload
-    payloads = _copies(base, "backup", 50, predictions=_inflated(base, copies=12))
+    # Enough that pushes still go on after both backups (the pusher stops at "stop"; most are never sent).
+    payloads = _copies(base, "backup", 200, predictions=_inflated(base, copies=12))
     folder = tmp_path / "pusher"
     _write(payloads, folder)
     server = _Server(tmp_path / "store.db", tmp_path)
