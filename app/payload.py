@@ -30,7 +30,7 @@ from pydantic import (
     model_validator,
 )
 
-from foldwise.packed import PACKED, Blob, FloatColumn, IntColumn
+from foldwise.packed import PACKED, TAIL, Blob, FloatColumn, IntColumn, TailWriter
 
 SCHEMA_VERSION = 2  # 2 added packed score columns; a version 1 document is read as it always was
 
@@ -231,9 +231,11 @@ class AssessmentPayload(_Strict):
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
 
-    def packed_json(self) -> bytes:
-        """The UTF-8 JSON document with its score columns packed: what the client sends."""
-        return _PAYLOAD.dump_json(self, context=PACKED)  # bytes at once: no copy of a large str to encode
+    def packed_json(self, *, tail: TailWriter | None = None) -> bytes:
+        """The UTF-8 JSON document with its score columns packed; with ``tail``, the header of a packed body
+        (``foldwise.wire``), each prediction block handed to ``tail`` and referred to by its place there."""
+        context = PACKED if tail is None else PACKED | {TAIL: tail}
+        return _PAYLOAD.dump_json(self, context=context)  # bytes at once: no copy of a large str to encode
 
 
 _PAYLOAD = TypeAdapter(AssessmentPayload)

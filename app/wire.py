@@ -13,15 +13,12 @@ block one after another in payload order, nothing before, between or after.
 
 from __future__ import annotations
 
-from pydantic import TypeAdapter
-
-from foldwise.packed import PACKED, TAIL, TailReader, TailWriter
+from foldwise.packed import TAIL, TailReader, TailWriter
 from foldwise.payload import AssessmentPayload
 
 CONTENT_TYPE = "application/x-foldwise-assessment"
 MAGIC = b"FOLDWISE"
 _PREFIX = len(MAGIC) + 8
-_PAYLOAD = TypeAdapter(AssessmentPayload)
 
 
 class PackedBodyError(ValueError):
@@ -31,7 +28,7 @@ class PackedBodyError(ValueError):
 def packed_body(payload: AssessmentPayload) -> list[bytes]:
     """The packed body of ``payload``, in parts whose concatenation is the body."""
     tail = TailWriter()
-    header = _PAYLOAD.dump_json(payload, context=PACKED | {TAIL: tail})
+    header = payload.packed_json(tail=tail)
     return [MAGIC, len(header).to_bytes(8, "little"), header, *tail.blocks]
 
 
