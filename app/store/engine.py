@@ -6,6 +6,8 @@ the backends the tests run on.
 
 from __future__ import annotations
 
+import sqlite3
+import time
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from pathlib import Path
@@ -16,7 +18,9 @@ from sqlalchemy import Connection, Engine, create_engine, event, func, make_url,
 
 _MIGRATIONS = Path(__file__).parent / "migrations"
 # busy_timeout first, so that switching a fresh file to WAL waits for a concurrent opener instead of failing.
-_SQLITE_PRAGMAS = ("busy_timeout=30000", "journal_mode=WAL", "foreign_keys=ON", "synchronous=NORMAL")
+_BUSY_SECONDS = 30
+_SQLITE_PRAGMAS = (f"busy_timeout={_BUSY_SECONDS * 1000}", "journal_mode=WAL", "foreign_keys=ON",
+                   "synchronous=NORMAL")
 _AUTOCHECKPOINT_PAGES = 1000  # SQLite's own default, restored after a deferred checkpoint
 _WRITE_LOCK = "foldwise_write_lock"
 _MIGRATION_LOCK = 0x666F6C6477697365  # "foldwise" in ASCII: the key of PostgreSQL's advisory lock
@@ -115,8 +119,30 @@ def _prepare_sqlite_connection(dbapi_connection, _record) -> None:
     dbapi_connection.isolation_level = None  # turn off the driver's own BEGIN; see the begin listener
     cursor = dbapi_connection.cursor()
     for pragma in _SQLITE_PRAGMAS:
-        cursor.execute(f"PRAGMA {pragma}")
+        if pragma.startswith("journal_mode="):
+            _switch_to_wal(cursor)
+        else:
+            cursor.execute(f"PRAGMA {pragma}")
     cursor.close()
+
+
+def _switch_to_wal(cursor) -> None:
+    """Put the file in WAL mode, waiting out other openers doing the same.
+
+    The mode is kept in the file, so an opened store needs nothing. On a fresh file, SQLite may answer a
+    concurrent switch with "database is locked" at once, without its busy handler (seen as 1 opener in
+    4 failing on a quarter of the tries): try again for as long as the busy timeout would have waited.
+    """
+    deadline = time.monotonic() + _BUSY_SECONDS
+    while True:
+        try:
+            if cursor.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
+                cursor.execute("PRAGMA journal_mode=WAL")
+            return
+        except sqlite3.OperationalError as error:
+            if "locked" not in str(error) or time.monotonic() > deadline:
+                raise
+            time.sleep(0.01)
 
 
 def _begin_sqlite_transaction(connection: Connection) -> None:
