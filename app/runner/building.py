@@ -80,7 +80,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
         family_winners=family_winners, overall_winners=overall_winners,
         predictions=predictions, failures=failures, models=models,
         versions=package_versions(), seeds=_seeds(space, layout),
-        total_fit_time=float(sum(result.fit_time for result in results.values())),
+        total_fit_time=float(sum(result.fit_time - result.inherited_time for result in results.values())),
     )
 
 

@@ -31,29 +31,46 @@ class FitResult:
     prediction: tuple[str, np.ndarray] | None = None
     error: str | None = None
     model: object | None = None
+    inherited_time: float = 0.0  # of fit_time, what the smaller configurations it grew from took
 
 
 def run_fit(task: FitTask, estimator, params, X, y, scorer, metrics, classes) -> FitResult:
     """Fit a fresh clone, so no two fits share state, and record whatever happens."""
     started_cpu = time.process_time()
-    fit_time = score_time = 0.0
     try:
         model = clone(estimator).set_params(**clone(params, safe=False))
+    except Exception as error:
+        return _failed(task, error, metrics, 0.0, 0.0, started_cpu)
+    return fit_and_score(task, model, _safe_indexing(X, task.train), _safe_indexing(y, task.train),
+                         _safe_indexing(X, task.test), _safe_indexing(y, task.test), scorer, metrics, classes,
+                         started_cpu=started_cpu)
+
+
+def fit_and_score(task: FitTask, model, X_train, y_train, X_test, y_test, scorer, metrics, classes, *,
+                  started_cpu: float, keep=None) -> FitResult:
+    """Fit ``model`` as it is, score it (and predict) on the test rows; ``keep`` maps it to what is kept."""
+    fit_time = score_time = 0.0
+    try:
         started = time.perf_counter()
-        model.fit(_safe_indexing(X, task.train), _safe_indexing(y, task.train))
+        model.fit(X_train, y_train)
         fit_time = time.perf_counter() - started
-        X_test, y_test = _safe_indexing(X, task.test), _safe_indexing(y, task.test)
         started = time.perf_counter()
         scores = scorer(model, X_test, y_test)
         scores = {metric: float(scores[metric]) for metric in metrics}
         prediction = outer_predictions(model, X_test, classes) if task.predict else None
         score_time = time.perf_counter() - started
     except Exception as error:  # a failing fit is data, not a crash: it is kept with its message
-        message = "".join(traceback.format_exception_only(error)).strip()[:10_000]
-        return FitResult(task.key, dict.fromkeys(metrics, np.nan), fit_time, score_time,
-                         time.process_time() - started_cpu, None, message)
+        return _failed(task, error, metrics, fit_time, score_time, started_cpu)
+    kept = None if not task.keep_model else model if keep is None else keep(model)
     return FitResult(task.key, scores, fit_time, score_time, time.process_time() - started_cpu, prediction,
-                     model=model if task.keep_model else None)
+                     model=kept)
+
+
+def _failed(task: FitTask, error: Exception, metrics, fit_time: float, score_time: float,
+            started_cpu: float) -> FitResult:
+    message = "".join(traceback.format_exception_only(error)).strip()[:10_000]
+    return FitResult(task.key, dict.fromkeys(metrics, np.nan), fit_time, score_time,
+                     time.process_time() - started_cpu, None, message)
 
 
 def outer_predictions(model, X_test, classes) -> tuple[str, np.ndarray]:

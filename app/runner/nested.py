@@ -18,6 +18,7 @@ from foldwise.assessment import Assessment
 from foldwise.runner.building import build_payload
 from foldwise.runner.cluster import data_for_workers
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
+from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.selection import select_in_fold
 from foldwise.runner.space import Space, space_from
 from foldwise.runner.splits import Layout, lay_out
@@ -26,7 +27,7 @@ from foldwise.runner.whole_search import nested_whole_search
 
 def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
               name=None, dataset=None, refit_all=True, keep_predictions=True,
-              keep_models=False) -> Assessment:
+              keep_models=False, grow=True) -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
@@ -55,6 +56,11 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         Keep every family winner as fitted on its outer training set (skops files in the payload), so
         an ensemble of fold winners can be downloaded ready to predict. The outer refits then wait
         for the inner folds' choices, so that only the winners' models are held.
+    grow : bool
+        Fit a forest, bagging or boosting family's configurations that differ only in their number of
+        trees or stages (``n_estimators``, ``max_iter``) as one model grown with ``warm_start``, once
+        per fold: the same models as separate fits (see ``foldwise.runner.growth``), at the cost of
+        the largest alone. Each configuration's fit time counts the growing it inherited.
     """
     _check_lengths(X, y, groups)
     expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
@@ -75,7 +81,9 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     layout = lay_out(X, y, groups, outer=outer, inner=inner, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
     scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
-    runner = _Runner(resolved, *data_for_workers(X, y), scorer, metrics, classes)
+    chains = growth_chains(resolved, n_samples=_num_samples(X)) if grow else \
+        [[c] for c in range(len(resolved.candidates))]
+    runner = _Runner(resolved, chains, *data_for_workers(X, y), scorer, metrics, classes)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
@@ -104,20 +112,34 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
 
 
 class _Runner:
-    def __init__(self, space: Space, X, y, scorer, metrics, classes):
+    def __init__(self, space: Space, chains: list[list[int]], X, y, scorer, metrics, classes):
         self.space, self.X, self.y = space, X, y
         self.scorer, self.metrics, self.classes = scorer, metrics, classes
+        self.chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
+        self.step_of = {c: step for chain in chains for step, c in enumerate(chain)}
 
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
-        candidates, estimators = self.space.candidates, self.space.estimators
-        jobs = (delayed(run_fit)(task, estimators[candidates[task.config].family],
-                                 candidates[task.config].params, self.X, self.y, self.scorer, self.metrics,
-                                 self.classes) for task in tasks)
         results = {}
-        for result in pool(jobs):
-            results[result.key] = result
-            bar.update(1)
+        for done in pool(self._job(job) for job in self._jobs(tasks)):
+            for result in done if isinstance(done, list) else [done]:
+                results[result.key] = result
+            bar.update(len(done) if isinstance(done, list) else 1)
         return results
+
+    def _jobs(self, tasks: list[FitTask]) -> list[list[FitTask]]:
+        """The tasks of one fold whose configurations share a chain become one job, smallest first."""
+        jobs: dict[tuple, list[FitTask]] = {}
+        for task in tasks:
+            jobs.setdefault((task.key[:-1], self.chain_of[task.config]), []).append(task)
+        return [sorted(job, key=lambda task: self.step_of[task.config]) for job in jobs.values()]
+
+    def _job(self, job: list[FitTask]):
+        candidates = self.space.candidates
+        estimator = self.space.estimators[candidates[job[0].config].family]
+        data = (self.X, self.y, self.scorer, self.metrics, self.classes)
+        if len(job) == 1:
+            return delayed(run_fit)(job[0], estimator, candidates[job[0].config].params, *data)
+        return delayed(run_chain)(job, estimator, [candidates[task.config].params for task in job], *data)
 
 
 def _inner_tasks(layout: Layout, n_configs: int) -> Iterable[FitTask]:
