@@ -118,14 +118,16 @@ class TailReader:
     def __init__(self, tail: memoryview):
         self.tail, self.taken = tail, []
 
-    def take(self, reference: dict) -> bytes:
+    def take(self, reference: dict) -> memoryview:
+        """The block's bytes as a read-only view into the body: copying 30,000 blocks one by one took a
+        quarter of a large push's reading, and a view holds no second copy of them in memory."""
         offset, size = reference.get("offset"), reference.get("size")
         # One test for the usual case (a body holds tens of thousands of blocks), the reasons after it.
         if not (len(reference) == 2 and type(offset) is int and type(size) is int and 0 <= offset
                 and 0 <= size and offset + size <= len(self.tail)):
             raise ValueError(self._refusal(reference))
         self.taken.append((offset, size))
-        return self.tail[offset:offset + size].tobytes()
+        return self.tail[offset:offset + size]
 
     def _refusal(self, reference: dict) -> str:
         offset, size = reference.get("offset"), reference.get("size")
@@ -148,9 +150,10 @@ class TailReader:
         return None
 
 
-def _blob(value: Any, handler, info: ValidationInfo) -> bytes:
+def _blob(value: Any, handler, info: ValidationInfo) -> bytes | memoryview:
     """A prediction block's bytes: base64 text in a JSON document, a reference into the tail of a packed
-    body (``foldwise.wire``), or bytes as they are from Python."""
+    body (``foldwise.wire``; a read-only view of the body's bytes, see ``TailReader.take``), or bytes as
+    they are from Python."""
     if isinstance(value, dict):
         tail = (info.context or {}).get(TAIL)
         if not isinstance(tail, TailReader):

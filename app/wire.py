@@ -32,7 +32,7 @@ def packed_body(payload: AssessmentPayload) -> list[bytes]:
     return [MAGIC, len(header).to_bytes(8, "little"), header, *tail.blocks]
 
 
-def read_packed_body(body: bytes) -> AssessmentPayload:
+def read_packed_body(body: bytes | memoryview) -> AssessmentPayload:
     """The assessment a packed body holds; ``pydantic.ValidationError`` for a bad assessment (locations
     as in the JSON header), ``PackedBodyError`` for bad framing."""
     view = memoryview(body)

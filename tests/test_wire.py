@@ -104,3 +104,43 @@ def test_a_tail_reference_in_a_json_document_is_refused(client, small_assessment
     assert response.status_code == 422
     assert "send the block as base64 text" in response.text
     assert client.get("/api/assessments").json() == []
+
+
+def test_the_blocks_read_from_a_packed_body_are_read_only_views_of_it(small_assessment):
+    body = _body(small_assessment.payload)
+    payload = read_packed_body(body)
+    block = payload.predictions[0].data
+    assert isinstance(block, memoryview) and block.readonly and block.obj is body  # no copy of the block
+    with pytest.raises(TypeError):
+        block[0] = 0
+    assert payload == small_assessment.payload
+
+
+def test_a_packed_body_sent_in_pieces_or_without_its_length_is_stored_whole(client, small_assessment):
+    payload = small_assessment.payload
+    body = _body(payload)
+    pieces = [body[start:start + 1000] for start in range(0, len(body), 1000)]
+    response = client.post("/api/assessments", content=iter(pieces), headers=PACKED)  # chunked: no length
+    assert response.status_code == 201, response.text
+    assert load_payload(client.app.state.engine, str(payload.uuid)) == payload
+
+
+def test_a_body_running_past_its_content_length_is_refused_by_the_push_route():
+    import asyncio
+
+    from fastapi.exceptions import RequestValidationError
+    from starlette.requests import Request
+
+    from foldwise.web.push import _body_in_one_buffer
+
+    # An HTTP server holds the client to its Content-Length before the app sees the body; here the ASGI
+    # messages are handed to the route's reader directly, as a server that did not would hand them.
+    messages = iter([{"type": "http.request", "body": b"FOLD", "more_body": True},
+                     {"type": "http.request", "body": b"WISE!", "more_body": False}])
+
+    async def receive():
+        return next(messages)
+
+    request = Request({"type": "http", "method": "POST", "headers": [(b"content-length", b"8")]}, receive)
+    with pytest.raises(RequestValidationError, match="runs past its Content-Length of 8 bytes"):
+        asyncio.run(_body_in_one_buffer(request))

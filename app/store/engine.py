@@ -81,7 +81,8 @@ def make_engine(url: str) -> Engine:
 
 
 @contextmanager
-def write_transaction(engine: Engine, *, defer_checkpoint: bool = False) -> Iterator[Connection]:
+def write_transaction(engine: Engine, *, defer_checkpoint: bool = False,
+                      own_references: bool = False) -> Iterator[Connection]:
     """A connection in a transaction that commits on success, on SQLite holding the write lock from its start.
 
     There the transaction begins IMMEDIATE, so two writers queue (within the busy timeout) instead
@@ -91,18 +92,24 @@ def write_transaction(engine: Engine, *, defer_checkpoint: bool = False) -> Iter
     With ``defer_checkpoint`` the commit on SQLite leaves the write-ahead log for ``checkpoint`` to copy
     into the database file later (committed and readable at once all the same), instead of copying it
     there and then: for a large assessment that copy is a second write of every page.
+
+    With ``own_references`` the caller writes only rows whose foreign keys point at rows it wrote in this
+    same transaction, under the write lock, so SQLite skips checking them row by row (a tenth of the time
+    of storing 600,000 inner scores). PostgreSQL checks them as ever.
     """
     with engine.connect() as connection:
         connection.execution_options(**{_WRITE_LOCK: True})
         sqlite = connection.connection.driver_connection if engine.dialect.name == "sqlite" else None
-        if defer_checkpoint and sqlite is not None:
-            sqlite.execute("PRAGMA wal_autocheckpoint=0")
+        if sqlite is not None:  # pragmas set outside the transaction: inside one SQLite ignores foreign_keys
+            sqlite.execute(f"PRAGMA wal_autocheckpoint={0 if defer_checkpoint else _AUTOCHECKPOINT_PAGES}")
+            sqlite.execute(f"PRAGMA foreign_keys={'OFF' if own_references else 'ON'}")
         try:
             with connection.begin():
                 yield connection
         finally:
-            if defer_checkpoint and sqlite is not None:
+            if sqlite is not None:
                 sqlite.execute(f"PRAGMA wal_autocheckpoint={_AUTOCHECKPOINT_PAGES}")
+                sqlite.execute("PRAGMA foreign_keys=ON")
 
 
 def checkpoint(engine: Engine) -> None:

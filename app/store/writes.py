@@ -31,7 +31,7 @@ def insert_assessment(engine: Engine, payload: AssessmentPayload, *, defer_check
     ``defer_checkpoint``, see ``write_transaction``: the caller runs ``checkpoint`` afterwards.
     """
     try:
-        with write_transaction(engine, defer_checkpoint=defer_checkpoint) as connection:
+        with write_transaction(engine, defer_checkpoint=defer_checkpoint, own_references=True) as connection:
             assessment_id = connection.execute(
                 insert(tables.assessments).values(**_assessment_row(payload))).inserted_primary_key[0]
             _insert_children(connection, assessment_id, payload)

@@ -106,6 +106,17 @@ def test_foreign_keys_are_enforced(engine):
             assessment_id=12345, position=0, level="outer", repeat=0, outer_fold=0, config=0, message="x"))
 
 
+def test_foreign_keys_are_enforced_again_after_storing_an_assessment(engine, make_payload):
+    # Storing an assessment skips SQLite's row-by-row check of its own references; the pooled connection
+    # that stored it (the only one the pool holds: the next request gets it back) checks them again.
+    assert insert_assessment(engine, make_payload())
+    if engine.dialect.name == "sqlite":
+        assert engine.pool.checkedin() == 1
+        with engine.connect() as connection:
+            assert connection.exec_driver_sql("PRAGMA foreign_keys").scalar() == 1
+    test_foreign_keys_are_enforced(engine)
+
+
 def test_an_in_memory_store_works(make_payload):
     engine = make_engine("sqlite://")
     payload = make_payload()
