@@ -86,7 +86,7 @@ def run_chain(tasks: list[FitTask], estimator, params: list[dict], X, y, scorer,
     fit would have taken, near enough); ``inherited_time`` says how much of it the earlier steps took.
     A step that fails is recorded as any failed fit, and the next step starts a fresh model.
     """
-    count, warm = count_parameter(estimator), _final_step(estimator)[1] + "warm_start"
+    count, warm = count_parameter(estimator), _warm_start_parameter(estimator)
     train, test = tasks[0].train, tasks[0].test
     X_train, y_train = _safe_indexing(X, train), _safe_indexing(y, train)
     X_test, y_test = _safe_indexing(X, test), _safe_indexing(y, test)
@@ -123,10 +123,14 @@ def _final_step(estimator) -> tuple[object, str]:
     return estimator, ""
 
 
+def _warm_start_parameter(estimator) -> str:
+    return _final_step(estimator)[1] + "warm_start"
+
+
 def _count_key(estimator, params: dict, n_samples: int) -> str | None:
     """The grid's count parameter when this configuration grows exactly, else None."""
     key = count_parameter(estimator)
-    if key is None or key not in params or _final_step(estimator)[1] + "warm_start" in params:
+    if key is None or key not in params or _warm_start_parameter(estimator) in params:
         return None
     try:
         configured = clone(estimator).set_params(**clone(params, safe=False))

@@ -121,9 +121,9 @@ class _Runner:
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
         results = {}
         for done in pool(self._job(job) for job in self._jobs(tasks)):
-            for result in done if isinstance(done, list) else [done]:
-                results[result.key] = result
-            bar.update(len(done) if isinstance(done, list) else 1)
+            done = done if isinstance(done, list) else [done]  # a chain's results, or one fit's
+            results.update((result.key, result) for result in done)
+            bar.update(len(done))
         return results
 
     def _jobs(self, tasks: list[FitTask]) -> list[list[FitTask]]:
