@@ -7,6 +7,7 @@ from functools import cached_property
 import pandas as pd
 
 from foldwise import frames
+from foldwise.definitions import NestedEstimate, nested_estimate
 from foldwise.payload import AssessmentPayload
 
 
@@ -56,14 +57,20 @@ class Assessment:
                                     flag="family_winner")
 
     def summary(self, metric: str | None = None) -> pd.DataFrame:
-        """Per family: mean, sd, min and max of its fold winners' outer scores."""
-        return frames.family_summary(self.outer_scores, metric or self.selection_metric)
+        """Per family: mean, sd, min and max of its fold winners' outer scores, with the outer folds used
+        (``n``) and failed (``n_failed``)."""
+        design = self.payload.design
+        return frames.family_summary(self.outer_scores, metric or self.selection_metric,
+                                     families=[family.name for family in self.payload.families],
+                                     n_folds=design.n_repeats * design.n_outer_folds)
 
     @property
-    def nested_estimate(self) -> tuple[float, float]:
-        """Mean and sd of the overall fold winners' outer scores: the score of the selection procedure."""
-        scores = self.winners["outer_score"]
-        return float(scores.mean()), float(scores.std())
+    def nested_estimate(self) -> NestedEstimate:
+        """The score of the selection procedure: mean and sd of the overall fold winners' outer scores,
+        with the outer folds it used (``n_used`` of ``n_folds``; ``described`` says it in words)."""
+        design = self.payload.design
+        return nested_estimate(self.winners["outer_score"].to_numpy(dtype=float),
+                               n_folds=design.n_repeats * design.n_outer_folds)
 
     def save(self, target: str) -> bool:
         """Write into a store (a path or SQLAlchemy URL) with no server; True when newly stored."""

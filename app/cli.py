@@ -192,8 +192,14 @@ def _list(args) -> int:
         return 0
     for row in frame.itertuples():
         print(f"{row.uuid}  {row.created_at:%Y-%m-%d %H:%M}  {row.name}  [{row.dataset or '-'}]  "
-              f"{row.selection_metric} {row.estimate_mean:.4f}")
+              f"{row.selection_metric} {row.estimate_mean:.4f}{_fold_count(row)}")
     return 0
+
+
+def _fold_count(row) -> str:
+    """Nothing when the estimate used every outer fold; else how many it used, as every page says it."""
+    failed = row.estimate_n_folds - row.estimate_n_used
+    return f" over {row.estimate_n_used} of {row.estimate_n_folds} outer folds ({failed} failed)" if failed else ""
 
 
 if __name__ == "__main__":

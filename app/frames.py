@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from foldwise import definitions
 from foldwise.payload import AssessmentPayload
 
 INNER_COLUMNS = ["repeat", "outer_fold", "inner_fold", "family", "config", "params", "metric", "score",
@@ -51,27 +52,30 @@ def winners_frame(inner: pd.DataFrame, outer: pd.DataFrame, metric: str, *, flag
     """One row per chosen configuration and outer fold: its inner mean ± sd, outer score and optimism.
 
     ``flag`` picks the overall winners (one row per repeat and outer fold) or the family winners
-    (one row per family, repeat and outer fold). The inner sd is the population sd over inner folds,
-    as scikit-learn's ``std_test_score``; optimism is inner mean − outer score.
+    (one row per family, repeat and outer fold). The inner mean and sd (population sd, as
+    scikit-learn's ``std_test_score``; both NaN when an inner fold failed) and the optimism are
+    ``foldwise.definitions``'.
     """
     chosen = outer[(outer["metric"] == metric) & outer[flag]]
     inner = inner[inner["metric"] == metric]
-    stats = (inner.groupby(["repeat", "outer_fold", "config"], sort=False)["score"]
-             .agg(inner_mean="mean", inner_std=lambda s: float(np.std(s.to_numpy())))
-             .reset_index())
+    codes, configs = pd.factorize(inner["config"])
+    summaries = definitions.inner_summaries(inner["repeat"], inner["outer_fold"], codes, np.zeros(len(codes)),
+                                            inner["score"].to_numpy(dtype=float))
+    stats = pd.DataFrame({"repeat": summaries["repeat"], "outer_fold": summaries["outer_fold"],
+                          "config": np.asarray(configs, dtype=object)[summaries["config"]],
+                          "inner_mean": summaries["inner_mean"], "inner_std": summaries["inner_std"]})
     table = chosen.merge(stats, on=["repeat", "outer_fold", "config"], how="left")
     table = table.rename(columns={"score": "outer_score"})
-    table["optimism"] = table["inner_mean"] - table["outer_score"]
+    table["optimism"] = definitions.optimism(table["inner_mean"], table["outer_score"])
     order = ["repeat", "outer_fold"] if flag == "overall_winner" else ["repeat", "outer_fold", "family"]
     return table.sort_values(order, kind="stable").reset_index(drop=True)[WINNER_COLUMNS]
 
 
-def family_summary(outer: pd.DataFrame, metric: str) -> pd.DataFrame:
-    """Per family: mean, sd, min and max of the outer scores of its fold winners, and how many."""
+def family_summary(outer: pd.DataFrame, metric: str, *, families: list[str], n_folds: int) -> pd.DataFrame:
+    """Per family: mean, sd, min and max of the outer scores of its fold winners, with the folds used
+    (``n``) and failed (``n_failed``) of the design's ``n_folds``; ``foldwise.definitions.family_summary``."""
     rows = outer[(outer["metric"] == metric) & outer["family_winner"]]
-    summary = (rows.groupby("family", sort=False)["score"]
-               .agg(mean="mean", sd="std", min="min", max="max", n="count").reset_index())
-    return summary.sort_values("mean", ascending=False, kind="stable").reset_index(drop=True)
+    return definitions.family_summary(rows, families=families, n_folds=n_folds)
 
 
 def _floats(values: list) -> np.ndarray:

@@ -15,11 +15,11 @@ from sklearn.utils.validation import _num_samples
 from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
+from foldwise.definitions import select_in_fold
 from foldwise.runner.building import build_payload
 from foldwise.runner.cluster import data_for_workers
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
-from foldwise.runner.selection import select_in_fold
 from foldwise.runner.space import Space, space_from
 from foldwise.runner.splits import Layout, lay_out
 from foldwise.runner.whole_search import nested_whole_search
@@ -164,7 +164,8 @@ def _select(layout: Layout, space: Space, results: dict, metric: str) -> list[tu
     for s, split in enumerate(layout.splits):
         inner = np.array([[results[("inner", s, i, c)].scores[metric] for i in range(layout.n_inner_folds)]
                           for c in range(n_configs)])
-        winners, overall = select_in_fold(inner, families)
+        chosen = select_in_fold(inner, families)
+        winners, overall = chosen.family, chosen.overall
         if overall is None:
             errors = {results[("inner", s, i, c)].error for i in range(layout.n_inner_folds)
                       for c in range(n_configs)} - {None}

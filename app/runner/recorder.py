@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from foldwise.assessment import Assessment
+from foldwise.definitions import select_in_fold
 from foldwise.payload import (
     AssessmentPayload,
     Configuration,
@@ -32,7 +33,6 @@ from foldwise.payload import (
     config_id,
 )
 from foldwise.runner.building import package_versions
-from foldwise.runner.selection import select_in_fold
 
 
 class Recorder:
@@ -91,7 +91,8 @@ class Recorder:
             for (r, o, i, c), (scores, _, _) in self._inner.items():
                 if (r, o) == (repeat, outer_fold) and scores[metric] is not None:
                     table[c, i] = scores[metric]
-            winners, overall = select_in_fold(table, members)
+            chosen = select_in_fold(table, members)
+            winners, overall = chosen.family, chosen.overall
             if overall is None:
                 raise ValueError(f"no configuration has a complete set of inner scores in repeat {repeat}, "
                                  f"outer fold {outer_fold}")

@@ -12,12 +12,14 @@ import pandas as pd
 from sqlalchemy import Connection, Engine, Row, Table, and_, or_, select, tuple_
 
 from foldwise import frames
+from foldwise.definitions import NestedEstimate
 from foldwise.payload import Configuration, Design, Family
 from foldwise.store import tables
 from foldwise.store.lookup import created_at_of, find_assessment, require_assessment
 
 INDEX_COLUMNS = ["uuid", "name", "dataset", "created_at", "task", "n_repeats", "n_outer_folds",
-                 "n_inner_folds", "n_configs", "families", "selection_metric", "estimate_mean", "estimate_sd"]
+                 "n_inner_folds", "n_configs", "families", "selection_metric", "estimate_mean", "estimate_sd",
+                 "estimate_n_used", "estimate_n_folds"]
 FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "message"]
 _SCORES = {"score": "float64", "fit_time": "float64", "score_time": "float64"}
 
@@ -26,8 +28,9 @@ _SCORES = {"score": "float64", "fit_time": "float64", "score_time": "float64"}
 class AssessmentRecord:
     """One assessment without its scores: what a page header or an API summary shows.
 
-    ``estimate_mean`` and ``estimate_sd`` are the nested estimate: mean and sample sd (ddof=1) of the
-    overall fold winners' outer scores on the selection metric, NaN where undefined.
+    ``estimate`` is the nested estimate (``foldwise.definitions.NestedEstimate``): mean and sample sd
+    (ddof=1) of the overall fold winners' outer scores on the selection metric, NaN where undefined, with
+    the number of outer folds it used of the design's.
     """
 
     uuid: str
@@ -41,11 +44,19 @@ class AssessmentRecord:
     versions: dict[str, str]
     seeds: dict[str, Any]
     total_fit_time: float
-    estimate_mean: float
-    estimate_sd: float
+    estimate: NestedEstimate
     n_inner_scores: int
     n_outer_scores: int
     n_failures: int
+
+    @property
+    def family_names(self) -> list[str]:
+        return [family.name for family in self.families]
+
+    @property
+    def n_folds(self) -> int:
+        """Outer folds over every repeat of the design."""
+        return self.design.n_repeats * self.design.n_outer_folds
 
 
 def list_assessments(engine: Engine, *, dataset: str | None = None, name: str | None = None) -> pd.DataFrame:
@@ -57,7 +68,8 @@ def list_assessments(engine: Engine, *, dataset: str | None = None, name: str | 
     where = [column.icontains(text, autoescape=True)
              for column, text in ((a.c.dataset, dataset), (a.c.name, name)) if text]
     with engine.connect() as connection:
-        index = pd.read_sql(select(a.c.id, *(a.c[column] for column in INDEX_COLUMNS if column != "families"))
+        index = pd.read_sql(select(a.c.id, *(a.c[column] for column in INDEX_COLUMNS
+                                             if column not in ("families", "estimate_n_folds")))
                             .where(*where).order_by(a.c.created_at.desc(), a.c.id.desc()), connection)
         members = connection.execute(
             select(tables.families.c.assessment_id, tables.families.c.name)
@@ -68,8 +80,11 @@ def list_assessments(engine: Engine, *, dataset: str | None = None, name: str | 
         names.setdefault(assessment_id, []).append(family)
     index["families"] = pd.Series([names.get(i, []) for i in index["id"]], index=index.index, dtype=object)
     index["created_at"] = pd.to_datetime(index["created_at"]).dt.tz_localize("UTC")
+    index["estimate_n_used"] = index["estimate_n_used"].fillna(0)
+    index["estimate_n_folds"] = index["n_repeats"] * index["n_outer_folds"]
     index = index.astype({"n_repeats": "int64", "n_outer_folds": "int64", "n_inner_folds": "int64",
-                          "n_configs": "int64", "estimate_mean": "float64", "estimate_sd": "float64"})
+                          "n_configs": "int64", "estimate_mean": "float64", "estimate_sd": "float64",
+                          "estimate_n_used": "int64", "estimate_n_folds": "int64"})
     return index[INDEX_COLUMNS]
 
 
@@ -147,8 +162,17 @@ def record_from(connection: Connection, row: Row) -> AssessmentRecord:
         design=Design.model_validate(row.design), families=[Family(**family._mapping) for family in families],
         configurations=configurations_of(connection, row.id), fingerprint=row.fingerprint,
         versions=row.versions, seeds=row.seeds, total_fit_time=row.total_fit_time,
-        estimate_mean=_nan_for_none(row.estimate_mean), estimate_sd=_nan_for_none(row.estimate_sd),
+        estimate=estimate_of(row),
         n_inner_scores=row.n_inner_scores, n_outer_scores=row.n_outer_scores, n_failures=row.n_failures)
+
+
+def estimate_of(row: Row) -> NestedEstimate:
+    """The stored nested estimate of an assessment row, with its fold counts."""
+    n_folds = row.n_repeats * row.n_outer_folds
+    # Stored before the count was kept and never filled (no outer score at all): none used.
+    n_used = row.estimate_n_used if row.estimate_n_used is not None else 0
+    return NestedEstimate(mean=_nan_for_none(row.estimate_mean), sd=_nan_for_none(row.estimate_sd),
+                          n_used=n_used, n_folds=n_folds)
 
 
 def configurations_of(connection: Connection, assessment_id: int) -> list[Configuration]:

@@ -57,6 +57,8 @@ assessments = Table(
     Column("total_fit_time", Double, nullable=False),
     Column("estimate_mean", Double),
     Column("estimate_sd", Double),
+    Column("estimate_n_used", Integer, comment="outer folds the nested estimate used"),
+    Column("content_digest", String(64), comment="digest of the assessment's content; null if stored before 0005"),
     Column("n_inner_scores", Integer, nullable=False),
     Column("n_outer_scores", Integer, nullable=False),
     Column("n_failures", Integer, nullable=False),
@@ -129,7 +131,7 @@ inner_summaries = Table(
     Column("outer_fold", Integer, nullable=False),
     Column("config", Integer, nullable=False),
     Column("metric", Integer, nullable=False),
-    Column("inner_mean", Double, comment="mean of the inner scores, failed fits left out"),
+    Column("inner_mean", Double, comment="mean of the inner scores; null when any fit failed"),
     Column("inner_std", Double, comment="population sd of the inner scores; null when any fit failed"),
     PrimaryKeyConstraint("assessment_id", "repeat", "outer_fold", "config", "metric"),
 )

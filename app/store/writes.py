@@ -9,10 +9,10 @@ from datetime import UTC
 from itertools import islice, repeat
 
 import numpy as np
-import pandas as pd
 from sqlalchemy import Connection, Double, Engine, Integer, LargeBinary, String, Table, delete, insert, select
 from sqlalchemy.exc import IntegrityError
 
+from foldwise.definitions import NestedEstimate, nested_estimate
 from foldwise.payload import AssessmentPayload
 from foldwise.store import tables
 from foldwise.store.engine import write_transaction
@@ -59,7 +59,7 @@ def _is_stored(engine: Engine, uuid: str) -> bool:
 def _assessment_row(payload: AssessmentPayload) -> dict:
     design, created = payload.design, payload.created_at
     offset = created.utcoffset()
-    mean, sd = _nested_estimate(payload)
+    estimate = nested_estimate_of(payload)
     return {
         "uuid": str(payload.uuid), "name": payload.name, "dataset": payload.dataset,
         "created_at": created if offset is None else created.astimezone(UTC).replace(tzinfo=None),
@@ -69,26 +69,24 @@ def _assessment_row(payload: AssessmentPayload) -> dict:
         "n_configs": len(payload.configurations), "selection_metric": design.selection_metric,
         "design": design.model_dump(mode="json"), "versions": payload.versions, "seeds": payload.seeds,
         "fingerprint": payload.fingerprint(), "total_fit_time": payload.total_fit_time,
-        "estimate_mean": mean, "estimate_sd": sd,
+        "estimate_mean": _or_none(estimate.mean), "estimate_sd": _or_none(estimate.sd),
+        "estimate_n_used": estimate.n_used,
         "n_inner_scores": len(payload.inner_scores), "n_outer_scores": len(payload.outer_scores),
         "n_failures": len(payload.failures),
     }
 
 
-def _nested_estimate(payload: AssessmentPayload) -> tuple[float | None, float | None]:
-    """Mean and sample sd (ddof=1) of the overall winners' outer scores on the selection metric.
-
-    Taken in (repeat, outer fold) order with pandas' NaN-skipping mean and std, as from the
-    ``outer_score`` column of ``frames.winners_frame``; None where undefined.
-    """
+def nested_estimate_of(payload: AssessmentPayload) -> NestedEstimate:
+    """The nested estimate (``foldwise.definitions``) on the selection metric, its folds in (repeat, outer
+    fold) order."""
     chosen = {(c.repeat, c.outer_fold, c.config) for c in payload.overall_winners}
     columns = payload.outer_scores
     rows = sorted((r, o, np.nan if s is None else s)
                   for r, o, c, m, s in zip(columns.repeat, columns.outer_fold, columns.config, columns.metric,
                                            columns.score, strict=True)
                   if m == 0 and (r, o, c) in chosen)
-    scores = pd.Series([score for _, _, score in rows], dtype="float64")
-    return _or_none(scores.mean()), _or_none(scores.std())
+    design = payload.design
+    return nested_estimate([score for _, _, score in rows], n_folds=design.n_repeats * design.n_outer_folds)
 
 
 def _or_none(value: float) -> float | None:

@@ -42,7 +42,8 @@ def ensemble_estimate(engine, record: AssessmentRecord, members: list[str], *, m
     mine = (scored.scores[scored.scores["metric"] == metric].set_index(["repeat", "outer_fold"])["score"]
             .reindex(sizes.index))
     selection = overall_fold_scores(outer, metric, folds=sizes.index)
-    best = str(frames.family_summary(outer, metric)["family"].iloc[0])
+    table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
+    best = str(table["family"].iloc[0])
     best_scores = family_fold_scores(outer, metric, [best], folds=sizes.index)[best]
     try:
         comparison = compare_paired(mine.to_numpy(), selection.to_numpy(),

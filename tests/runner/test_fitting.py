@@ -138,7 +138,12 @@ def test_a_family_failing_everywhere_leaves_the_others_to_win(cancer):
         assessment = nested_cv(space, X, y, outer=3, inner=3, progress=False)
     assert set(assessment.family_winners["family"]) == {"tree"}
     assert set(assessment.winners["family"]) == {"tree"}
-    assert set(assessment.summary()["family"]) == {"tree"}
+    summary = assessment.summary().set_index("family")
+    # The failing family is listed, counted as failed in every fold, never averaged over nothing.
+    assert list(summary.index) == ["tree", "broken"]
+    assert (summary.loc["tree", "n"], summary.loc["tree", "n_failed"]) == (3, 0)
+    assert (summary.loc["broken", "n"], summary.loc["broken", "n_failed"]) == (0, 3)
+    assert np.isnan(summary.loc["broken", "mean"])
 
 
 def test_a_fold_where_everything_fails_raises(cancer):

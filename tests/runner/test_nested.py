@@ -43,7 +43,7 @@ def test_classifier_families_match_grid_search_in_cross_val_score(cancer, classi
                 for family, (estimator, grid) in classifier_space.items()}
         assert assessment.winners["family"].iloc[fold] == max(best, key=best.get)
         assert_allclose(assessment.winners["inner_mean"].iloc[fold], max(best.values()), rtol=0, atol=1e-12)
-    assert assessment.nested_estimate[0] == pytest.approx(float(np.mean(_winner_scores(assessment))), abs=1e-15)
+    assert assessment.nested_estimate.mean == pytest.approx(float(np.mean(_winner_scores(assessment))), abs=1e-15)
     AssessmentPayload.model_validate_json(assessment.payload.model_dump_json())
 
 

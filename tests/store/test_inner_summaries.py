@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
@@ -11,20 +12,25 @@ from alembic.config import Config
 from sqlalchemy import select
 
 import foldwise.store
+from foldwise import definitions
 from foldwise.store import insert_assessment, tables
 from foldwise.store.summaries import KEYS, inner_summary_columns
 
 
 def _by_loop(repeat, outer_fold, config, metric, score) -> dict[tuple, tuple[float, float]]:
-    """The summaries by a plain loop: numpy's mean of the scores that exist, numpy's std of all of them
-    (NaN when any fit failed), population sd as scikit-learn's std_test_score (ddof=0)."""
+    """The summaries by a plain Python loop: mean and population sd (ddof=0, as scikit-learn's
+    std_test_score), both NaN when any fit of the group failed, as GridSearchCV's mean_test_score and
+    std_test_score are with error_score=np.nan."""
     groups: dict[tuple, list] = {}
     for key, value in zip(zip(repeat, outer_fold, config, metric, strict=True), score, strict=True):
-        groups.setdefault(key, []).append(np.nan if value is None else value)
+        groups.setdefault(key, []).append(math.nan if value is None else value)
     result = {}
     for key, values in groups.items():
-        present = [value for value in values if not np.isnan(value)]
-        result[key] = (np.mean(present) if present else np.nan, np.std(values))
+        if any(math.isnan(value) for value in values):
+            result[key] = (math.nan, math.nan)
+            continue
+        mean = math.fsum(values) / len(values)
+        result[key] = (mean, math.sqrt(math.fsum((value - mean) ** 2 for value in values) / len(values)))
     return result
 
 
@@ -56,6 +62,20 @@ def test_summaries_equal_a_loop_over_shuffled_rows_with_failed_fits():
     np.testing.assert_allclose(sds, [expected[key][1] for key in sorted(expected)], rtol=0, atol=1e-12)
     assert np.isnan(found[(1, 2, 4, 0)][0]) and np.isnan(found[(1, 2, 4, 0)][1])
     assert np.isnan(sds).sum() > 1 and not np.isnan(means).all()  # the failures left marks to check
+
+
+def test_the_cache_is_the_definition_float_for_float():
+    """The store's cached summaries are foldwise.definitions' inner_mean and inner_sd, bit for bit."""
+    rng = np.random.default_rng(7)
+    keys = np.array(list(np.ndindex(2, 3, 10, 6, 2)))  # 10 inner folds: numpy's pairwise sums differ from a loop
+    score = rng.normal(0.7, 0.1, len(keys))
+    score[rng.choice(len(keys), 9, replace=False)] = np.nan
+    summaries = inner_summary_columns(keys[:, 0], keys[:, 1], keys[:, 3], keys[:, 4], score.tolist())
+    found = _as_dict(summaries)
+    table = score.reshape(2, 3, 10, 6, 2)
+    for (r, o, c, m), (mean, sd) in found.items():
+        scores = table[r, o, :, c, m]
+        np.testing.assert_array_equal([mean, sd], [definitions.inner_mean(scores), definitions.inner_sd(scores)])
 
 
 def test_no_inner_scores_give_no_summaries():

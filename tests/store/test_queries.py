@@ -94,10 +94,12 @@ def test_the_nested_estimate_is_mean_and_sample_sd_of_the_winners_outer_scores(e
     assert len(scores) == 6
     record = get_assessment(engine, str(stored.uuid))
     # Sample sd (ddof=1), as numpy computes it with ddof=1: common practice for a nested estimate's spread.
-    assert record.estimate_mean == pytest.approx(np.mean(scores), rel=1e-12)
-    assert record.estimate_sd == pytest.approx(np.std(scores, ddof=1), rel=1e-12)
+    assert record.estimate.mean == pytest.approx(np.mean(scores), rel=1e-12)
+    assert record.estimate.sd == pytest.approx(np.std(scores, ddof=1), rel=1e-12)
+    assert (record.estimate.n_used, record.estimate.n_folds) == (6, 6)
     [listed] = list_assessments(engine).to_dict("records")
-    assert (listed["estimate_mean"], listed["estimate_sd"]) == (record.estimate_mean, record.estimate_sd)
+    assert (listed["estimate_mean"], listed["estimate_sd"]) == (record.estimate.mean, record.estimate.sd)
+    assert (listed["estimate_n_used"], listed["estimate_n_folds"]) == (6, 6)
 
 
 def test_one_winner_gives_a_mean_and_a_nan_sd(engine, make_payload):
@@ -106,8 +108,9 @@ def test_one_winner_gives_a_mean_and_a_nan_sd(engine, make_payload):
                                                | {"overall_winners": whole.overall_winners[:1]})
     insert_assessment(engine, payload)
     record = get_assessment(engine, payload.uuid)
-    assert record.estimate_mean == _winner_outer_scores(payload)[0]
-    assert np.isnan(record.estimate_sd)
+    assert record.estimate.mean == _winner_outer_scores(payload)[0]
+    assert np.isnan(record.estimate.sd)
+    assert record.estimate.described == "over 1 of 6 outer folds (5 failed)"
 
 
 def test_the_record_holds_the_payload_description_and_counts(engine, stored):
@@ -161,7 +164,8 @@ def test_list_assessments_newest_first_with_case_insensitive_filters(engine, mak
     index = list_assessments(engine)
     assert list(index.columns) == ["uuid", "name", "dataset", "created_at", "task", "n_repeats",
                                    "n_outer_folds", "n_inner_folds", "n_configs", "families",
-                                   "selection_metric", "estimate_mean", "estimate_sd"]
+                                   "selection_metric", "estimate_mean", "estimate_sd", "estimate_n_used",
+                                   "estimate_n_folds"]
     assert list(index["uuid"]) == [str(c.uuid), str(b.uuid), str(a.uuid)]
     assert list(index["created_at"]) == [pd.Timestamp(p.created_at).tz_convert("UTC") for p in (c, b, a)]
     first = index.iloc[0]

@@ -33,9 +33,10 @@ def test_assessment_reads_back_with_its_design_and_estimate(client, small_assess
     body = client.get(f"/api/assessments/{small_assessment.uuid}").json()
     assert body["design_text"] == "3 outer × 3 inner"
     assert [f["name"] for f in body["families"]] == ["logistic", "tree"]
-    mean, sd = small_assessment.nested_estimate
-    assert np.isclose(body["nested_estimate"]["mean"], mean, rtol=0, atol=1e-12)
-    assert np.isclose(body["nested_estimate"]["sd"], sd, rtol=0, atol=1e-12)
+    estimate = small_assessment.nested_estimate
+    assert np.isclose(body["nested_estimate"]["mean"], estimate.mean, rtol=0, atol=1e-12)
+    assert np.isclose(body["nested_estimate"]["sd"], estimate.sd, rtol=0, atol=1e-12)
+    assert (body["nested_estimate"]["n"], body["nested_estimate"]["n_failed"]) == (3, 0)
     assert body["fingerprint"] == small_assessment.payload.fingerprint()
 
 

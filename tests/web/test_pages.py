@@ -16,8 +16,8 @@ def test_index_lists_the_assessment_with_its_estimate(client, small_assessment):
     page = client.get("/").text
     assert "breast cancer, two families" in page
     assert "3 outer × 3 inner" in page
-    mean, sd = small_assessment.nested_estimate
-    assert f"{mean:.3f} ± {sd:.3f}" in page
+    estimate = small_assessment.nested_estimate
+    assert f"{estimate.mean:.3f} ± {estimate.sd:.3f}" in page
     assert "external validation" in page  # the caution is on every page
 
 

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 from fastapi import APIRouter, Request
 
 from foldwise import frames
+from foldwise.definitions import nested_estimate
 from foldwise.store import (
     AssessmentRecord,
     EnsembleRecord,
@@ -65,14 +66,17 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
             seen.add(key)
             folds.append(FoldRow(*key, row, by_fold.get(key, {})))
     scores = overall["outer_score"]
-    estimate = {"mean": plain(scores.mean()), "sd": plain(scores.std()), "min": plain(scores.min()),
-                "max": plain(scores.max()), "n": int(scores.count())}
+    nested = nested_estimate(scores.to_numpy(dtype=float), n_folds=record.n_folds)
+    estimate = {"mean": plain(nested.mean), "sd": plain(nested.sd), "min": plain(scores.min()),
+                "max": plain(scores.max()), "n": nested.n_used, "n_folds": nested.n_folds,
+                "n_failed": nested.n_failed, "described": nested.described}
     failures = failures_for(engine, uuid)
     design, families = record.design, [family.name for family in record.families]
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
         metric=metric, metrics=metrics, estimate=estimate,
-        summary=records(frames.family_summary(outer, metric)), families=families,
+        summary=records(frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)),
+        families=families,
         colours=family_colours(families), folds=folds, failures=records(failures.head(20)),
         n_failures=len(failures), ensembles=ensembles_for(engine, uuid))
 

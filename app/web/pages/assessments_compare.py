@@ -113,7 +113,8 @@ def _common_metric(x: AssessmentRecord, y: AssessmentRecord, metric: str | None,
 
 def _side(engine, record: AssessmentRecord, metric: str) -> Side:
     outer = outer_scores_for(engine, record.uuid)
-    ranked = frames.family_summary(outer, metric).dropna(subset=["mean"])["family"]
+    table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
+    ranked = table.dropna(subset=["mean"])["family"]
     return Side(record=record, families=family_fold_scores(outer, metric, [f.name for f in record.families]),
                 overall=overall_fold_scores(outer, metric), sizes=fold_sizes(outer),
                 best=str(ranked.iloc[0]) if len(ranked) else None)

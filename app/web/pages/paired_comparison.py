@@ -57,7 +57,7 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
     configurations = [Candidate(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")
                       for config in record.configurations] if record.design.refit_all else []
-    a, b = _defaults(outer, metric, [family.value for family in families], a or None, b or None)
+    a, b = _defaults(outer, metric, [family.value for family in families], record.n_folds, a or None, b or None)
     first, second = (_candidate(record, families, configurations, value, side)
                      for value, side in ((a, "a"), (b, "b")))
     sizes = fold_sizes_for(engine, uuid)
@@ -98,10 +98,11 @@ def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b:
             "n_repeats": page.record.design.n_repeats, **page.result, "folds": page.folds}
 
 
-def _defaults(outer: pd.DataFrame, metric: str, families: list[str], a: str | None,
+def _defaults(outer: pd.DataFrame, metric: str, families: list[str], n_folds: int, a: str | None,
               b: str | None) -> tuple[str, str]:
     """Unset sides fall to the best families by mean outer score, a first, the same one only if alone."""
-    ranked = [str(family) for family in frames.family_summary(outer, metric)["family"]]
+    ranked = [str(family) for family in frames.family_summary(outer, metric, families=families,
+                                                                         n_folds=n_folds)["family"]]
     ranked += [family for family in families if family not in ranked]
     if a is None:
         a = next((family for family in ranked if family != b), ranked[0])

@@ -40,7 +40,8 @@ def ranking_context(engine, uuid: str, *, metric: str | None) -> RankingContext:
         ranking = rank_families(scores)
     except ValueError as error:
         raise HTTPException(422, f"cannot rank the families {families} on {metric!r}: {error}") from None
-    summary = {row["family"]: row for row in records(frames.family_summary(outer, metric))}
+    table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
+    summary = {row["family"]: row for row in records(table)}
     rows = [{"family": family, "mean_rank": rank, **{key: summary.get(family, {}).get(key)
                                                      for key in ("mean", "sd", "n")}}
             for family, rank in sorted(ranking.mean_ranks.items(), key=lambda item: item[1])]
