@@ -2,7 +2,7 @@
 
 __version__ = "0.1.0"
 
-__all__ = ["Assessment", "Recorder", "build_ensemble", "nested_cv"]
+__all__ = ["Assessment", "Recorder", "assessments", "build_ensemble", "load", "nested_cv"]
 
 
 def __getattr__(name):
@@ -19,6 +19,10 @@ def __getattr__(name):
         from foldwise.ensemble import build_ensemble
 
         return build_ensemble
+    if name in ("load", "assessments"):
+        from foldwise import loading
+
+        return getattr(loading, name)
     if name == "Assessment":
         from foldwise.assessment import Assessment
 

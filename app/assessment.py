@@ -6,7 +6,7 @@ from functools import cached_property
 
 import pandas as pd
 
-from foldwise import frames
+from foldwise import display, frames
 from foldwise.definitions import NestedEstimate, nested_estimate
 from foldwise.payload import AssessmentPayload
 
@@ -23,9 +23,11 @@ class Assessment:
         self.payload = payload
 
     def __repr__(self) -> str:
-        design = self.payload.design
-        return (f"<Assessment {self.name!r}: {design.n_repeats} × {design.n_outer_folds} outer × "
-                f"{design.n_inner_folds} inner, {len(self.payload.configurations)} configurations>")
+        return display.text_repr(self)
+
+    def _repr_html_(self) -> str:
+        """Name, design, nested estimate with its fold count, family summary and fold winners, for notebooks."""
+        return display.html_repr(self)
 
     @property
     def uuid(self) -> str:

@@ -12,7 +12,6 @@ from sklearn.model_selection import GridSearchCV, RandomizedSearchCV
 from sklearn.model_selection._search import BaseSearchCV
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.validation import _num_samples
-from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
 from foldwise.definitions import select_in_fold
@@ -20,6 +19,7 @@ from foldwise.runner.building import build_payload
 from foldwise.runner.cluster import data_for_workers
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
+from foldwise.runner.progress import progress_bar
 from foldwise.runner.space import Space, space_from
 from foldwise.runner.splits import Layout, lay_out
 from foldwise.runner.whole_search import nested_whole_search
@@ -87,7 +87,7 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
-    with tqdm(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
+    with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
             Parallel(n_jobs=n_jobs, return_as="generator_unordered") as pool:
         first = [*_inner_tasks(layout, n_configs)]
         outer_at_once = refit_all and not keep_models

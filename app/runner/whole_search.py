@@ -17,12 +17,12 @@ from sklearn.base import clone, is_classifier
 from sklearn.metrics import check_scoring
 from sklearn.utils import _safe_indexing
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
-from tqdm.auto import tqdm
 
 from foldwise.assessment import Assessment
 from foldwise.payload import config_id
 from foldwise.runner.building import build_payload
 from foldwise.runner.fitting import FitResult, outer_predictions
+from foldwise.runner.progress import progress_bar
 from foldwise.runner.space import Candidate, Space
 from foldwise.runner.splits import lay_out
 
@@ -44,7 +44,7 @@ def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progres
     layout = lay_out(X, y, groups, outer=outer, inner=search.cv, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
     scorer = check_scoring(search.estimator, scoring=metrics)
-    with tqdm(total=len(layout.splits), unit="search", desc=name or "nested cv", disable=not progress) as bar:
+    with progress_bar(total=len(layout.splits), unit="search", desc=name or "nested cv", disable=not progress) as bar:
         folds = []
         for fold in Parallel(n_jobs=n_jobs, return_as="generator")(
                 delayed(_fit_search)(search, X, y, groups, split.train, split.test, scorer, metrics, classes,
