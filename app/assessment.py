@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import base64
+from dataclasses import dataclass
 from functools import cached_property
 
 import pandas as pd
@@ -9,6 +11,15 @@ import pandas as pd
 from foldwise import display, frames
 from foldwise.definitions import NestedEstimate, nested_estimate
 from foldwise.payload import AssessmentPayload
+
+
+@dataclass(frozen=True)
+class FinalChoice:
+    """What the final selection chose: a configuration of a family, with its parameters."""
+
+    family: str
+    config: str
+    params: dict
 
 
 class Assessment:
@@ -73,6 +84,35 @@ class Assessment:
         design = self.payload.design
         return nested_estimate(self.winners["outer_score"].to_numpy(dtype=float),
                                n_folds=design.n_repeats * design.n_outer_folds)
+
+    @property
+    def final_choice(self) -> FinalChoice | None:
+        """The configuration the final selection chose on every row (``nested_cv(..., final=True)``)."""
+        final = self.payload.final
+        if final is None or final.config is None:
+            return None
+        config = self.payload.configurations[final.config]
+        return FinalChoice(family=config.family, config=config.id, params=config.params)
+
+    @cached_property
+    def final_scores(self) -> pd.DataFrame:
+        """The final selection's inner scores: the columns of ``inner_scores`` less repeat and outer fold."""
+        return frames.final_frame(self.payload)
+
+    @cached_property
+    def final_model(self):
+        """The chosen configuration refit on every row, ready for ``predict``: the model the nested estimate
+        is about. Read with the same trusted skops loader as ensembles."""
+        final = self.payload.final
+        if final is None:
+            raise LookupError("this assessment has no final selection: run nested_cv(..., final=True)")
+        if final.model_skops is None:
+            reason = final.refit_error or "every configuration failed, or skops could not write the model"
+            raise LookupError(f"the final selection kept no model: {reason}")
+        from foldwise.ensemble import load_skops
+
+        return load_skops(base64.b64decode(final.model_skops), what="the final model",
+                          allowed=[family.estimator_class for family in self.payload.families])
 
     def save(self, target: str) -> bool:
         """Write into a store (a path or SQLAlchemy URL) with no server; True when newly stored."""

@@ -12,6 +12,7 @@ INNER_COLUMNS = ["repeat", "outer_fold", "inner_fold", "family", "config", "para
                  "fit_time", "score_time"]
 OUTER_COLUMNS = ["repeat", "outer_fold", "family", "config", "params", "metric", "score", "fit_time",
                  "score_time", "n_train", "n_test", "family_winner", "overall_winner"]
+FINAL_COLUMNS = ["inner_fold", "family", "config", "params", "metric", "score", "fit_time", "score_time"]
 WINNER_COLUMNS = ["repeat", "outer_fold", "family", "config", "params", "inner_mean", "inner_std",
                   "outer_score", "optimism"]
 
@@ -25,6 +26,19 @@ def inner_frame(payload: AssessmentPayload) -> pd.DataFrame:
         "score_time": _floats(columns.score_time),
     })
     return _name_configs(frame, payload)[INNER_COLUMNS]
+
+
+def final_frame(payload: AssessmentPayload) -> pd.DataFrame:
+    """The final selection's inner scores (columns ``FINAL_COLUMNS``); empty when the run made none."""
+    if payload.final is None:
+        return pd.DataFrame({name: [] for name in FINAL_COLUMNS})
+    columns = payload.final.inner_scores
+    frame = pd.DataFrame({
+        "inner_fold": columns.inner_fold, "config_index": columns.config, "metric_index": columns.metric,
+        "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
+        "score_time": _floats(columns.score_time),
+    })
+    return _name_configs(frame, payload)[FINAL_COLUMNS]
 
 
 def outer_frame(payload: AssessmentPayload) -> pd.DataFrame:

@@ -179,6 +179,40 @@ class FittedModel(_Strict):
     skops: str = Field(min_length=1, description="base64 of skops.io.dumps of the fitted estimator")
 
 
+class FinalScores(_Strict):
+    """The final selection's inner scores: one row per inner fold, configuration and metric."""
+
+    inner_fold: IntColumn
+    config: IntColumn = Field(description="position in `configurations`")
+    metric: IntColumn = Field(description="position in `design.metrics`")
+    score: FloatColumn = Field(description="null for a failed fit")
+    fit_time: FloatColumn
+    score_time: FloatColumn
+
+    @model_validator(mode="after")
+    def _same_lengths(self):
+        lengths = {name: len(getattr(self, name)) for name in type(self).model_fields}
+        if len(set(lengths.values())) > 1:
+            raise ValueError(f"columns differ in length: {lengths}")
+        return self
+
+
+class FinalSelection(_Strict):
+    """The selection procedure applied to every row: the inner splitter over all rows, the winner chosen by
+    the rule of the outer folds and refit on all rows. The model the nested estimate describes."""
+
+    n_inner_folds: int = Field(ge=1, le=MAX_COUNT)
+    inner_splitter: str = Field(default="", max_length=2_000)
+    inner_scores: FinalScores
+    family_winners: list[int] = Field(default_factory=list, description="positions in `configurations`")
+    config: int | None = Field(default=None, ge=0, description="the chosen configuration; null when every "
+                                                               "configuration failed")
+    refit_time: float | None = Field(default=None, ge=0, allow_inf_nan=False)
+    refit_error: Text | None = Field(default=None, max_length=10_000)
+    model_skops: str | None = Field(default=None, description="base64 of skops.io.dumps of the chosen "
+                                                              "configuration refit on every row")
+
+
 class Failure(_Strict):
     level: Literal["inner", "outer"]
     repeat: int = Field(ge=0)
@@ -207,6 +241,7 @@ class AssessmentPayload(_Strict):
     predictions: list[Prediction] = Field(default_factory=list)
     failures: list[Failure] = Field(default_factory=list)
     models: list[FittedModel] = Field(default_factory=list, description="fitted family winners, if kept")
+    final: FinalSelection | None = Field(default=None, description="the final selection on every row, if run")
     versions: dict[str, str] = Field(default_factory=dict)
     seeds: dict[str, Any] = Field(default_factory=dict)
     total_fit_time: float = Field(default=0.0, ge=0, allow_inf_nan=False)
@@ -330,6 +365,8 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     for position, family in enumerate(payload.families):
         if family.estimator_skops is not None:
             _check_base64(f"families[{position}].estimator_skops", family.estimator_skops)
+    if payload.final is not None:
+        _check_final(payload.final, n_configs, n_metrics)
     kept = set()
     for position, model in enumerate(payload.models):
         where = f"models[{position}]"
@@ -339,6 +376,23 @@ def _check_consistency(payload: AssessmentPayload) -> None:
             raise ValueError(f"{where}: repeat {model.repeat}, outer fold {model.outer_fold}, config "
                              f"{model.config} appears twice")
         kept.add((model.repeat, model.outer_fold, model.config))
+
+
+def _check_final(final: FinalSelection, n_configs: int, n_metrics: int) -> None:
+    columns = final.inner_scores
+    for field, limit, target in (("config", n_configs, "configurations"), ("metric", n_metrics, "design.metrics"),
+                                 ("inner_fold", final.n_inner_folds, "final.n_inner_folds")):
+        values = _int_array(getattr(columns, field))
+        if len(outside := np.flatnonzero((values < 0) | (values >= limit))):
+            raise ValueError(f"final.inner_scores.{field}[{outside[0]}]: {values[outside[0]]} is not a position "
+                             f"in {target} (0..{limit - 1})")
+    for position, config in enumerate([*final.family_winners, *([final.config] if final.config is not None
+                                                                 else [])]):
+        if not 0 <= config < n_configs:
+            where = f"final.family_winners[{position}]" if position < len(final.family_winners) else "final.config"
+            raise ValueError(f"{where}: {config} is not a position in configurations (0..{n_configs - 1})")
+    if final.model_skops is not None:
+        _check_base64("final.model_skops", final.model_skops)
 
 
 def _refuse_duplicates(where: str, names: list[str]) -> None:

@@ -17,6 +17,7 @@ from foldwise.assessment import Assessment
 from foldwise.definitions import select_in_fold
 from foldwise.runner.building import build_payload
 from foldwise.runner.cluster import data_for_workers
+from foldwise.runner.final import final_selection, final_splits, final_tasks
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.progress import progress_bar
@@ -27,7 +28,7 @@ from foldwise.runner.whole_search import nested_whole_search
 
 def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
               name=None, dataset=None, refit_all=True, keep_predictions=True,
-              keep_models=False, grow=True) -> Assessment:
+              keep_models=False, grow=True, final=False) -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
@@ -56,6 +57,10 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         Keep every family winner as fitted on its outer training set (skops files in the payload), so
         an ensemble of fold winners can be downloaded ready to predict. The outer refits then wait
         for the inner folds' choices, so that only the winners' models are held.
+    final : bool
+        Also run the final selection (``foldwise.runner.final``): the inner splitter over every row, every
+        configuration scored on each of its folds, the winner chosen by the outer folds' rule and refit on
+        every row — the model the nested estimate describes (``assessment.final_model``).
     grow : bool
         Fit a forest, bagging or boosting family's configurations that differ only in their number of
         trees or stages (``n_estimators``, ``max_iter``) as one model grown with ``warm_start``, once
@@ -104,11 +109,23 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
             results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions,
                                                              wanted if keep_models else set()), bar))
 
+        if final:
+            splits, inner_splitter = final_splits(X, y, groups, inner=inner, classifier=classifier)
+            tasks = final_tasks(splits, n_configs)
+            bar.total += len(tasks)
+            bar.refresh()
+            ran = runner.run(pool, tasks, bar)
+            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y)
+            results.update(ran)
+
     _warn_failures(list(results.values()))
-    return Assessment(build_payload(
+    for key in [key for key in results if key[0] == "final"]:
+        del results[key]  # kept in the payload's own part, not among the outer folds
+    payload = build_payload(
         name=name or "nested cross-validation", dataset=dataset, space=resolved, layout=layout, y=y,
         metrics=metrics, classes=classes, classifier=classifier, results=results, choices=choices,
-        refit_all=refit_all, n_features=_n_features(X), grouped=groups is not None))
+        refit_all=refit_all, n_features=_n_features(X), grouped=groups is not None)
+    return Assessment(payload.model_copy(update={"final": chosen}) if final else payload)
 
 
 class _Runner:

@@ -28,6 +28,7 @@ from foldwise.store.queries import (
 )
 from foldwise.store.restore import (
     StoredPrediction,
+    final_model_for,
     fold_targets_for,
     load_payload,
     outer_folds_for,
@@ -63,6 +64,7 @@ __all__ = [
     "insert_ensemble",
     "list_assessments",
     "load_payload",
+    "final_model_for",
     "make_engine",
     "outer_folds_for",
     "outer_scores_for",

@@ -12,6 +12,7 @@ from foldwise.payload import (
     AssessmentPayload,
     Failure,
     Family,
+    FinalSelection,
     FittedModel,
     FoldChoice,
     InnerScores,
@@ -105,7 +106,22 @@ def _payload(connection: Connection, row: Row) -> AssessmentPayload:
         failures=[Failure(**failure._mapping) for failure in rows(f, tables.payload_fields(f))],
         models=[FittedModel(repeat=r, outer_fold=o, config=c, skops=_text(data))
                 for r, o, c, data in rows(m, tables.payload_fields(m))],
-        versions=row.versions, seeds=row.seeds, total_fit_time=row.total_fit_time)
+        final=_final(connection, row.id), versions=row.versions, seeds=row.seeds,
+        total_fit_time=row.total_fit_time)
+
+
+def _final(connection: Connection, assessment_id: int) -> FinalSelection | None:
+    f = tables.final_selections
+    found = connection.execute(select(f.c.selection, f.c.model).where(f.c.assessment_id == assessment_id)).first()
+    return None if found is None else FinalSelection(**found.selection, model_skops=_text(found.model))
+
+
+def final_model_for(engine: Engine, uuid: str) -> bytes | None:
+    """The skops file of the final selection's refit model; None when the run made none or kept none."""
+    f = tables.final_selections
+    with engine.connect() as connection:
+        row = require_assessment(connection, uuid)
+        return connection.scalar(select(f.c.model).where(f.c.assessment_id == row.id))
 
 
 def _families(connection: Connection, assessment_id: int) -> list[Family]:

@@ -174,6 +174,15 @@ fitted_models = _child(
     Column("skops", LargeBinary, nullable=False, comment="skops file of the fitted fold winner"),
 )
 
+# The final selection on every row (runner/final.py), when the run made one: its scores and choice as the
+# payload's JSON, its refit model apart, so reading the choice never reads the model.
+final_selections = Table(
+    "final_selections", metadata,
+    Column("assessment_id", Integer, ForeignKey("assessments.id", ondelete="CASCADE"), primary_key=True),
+    Column("selection", JSON, nullable=False, comment="the payload's `final` without its model"),
+    Column("model", LargeBinary, comment="skops file of the chosen configuration refit on every row"),
+)
+
 # Ensembles are the store's own records, made after the assessment: not part of its payload.
 ensembles = Table(
     "ensembles", metadata,

@@ -121,6 +121,11 @@ def _insert_children(connection: Connection, assessment_id: int, payload: Assess
     put(tables.fitted_models, _fields(payload.models, ["repeat", "outer_fold", "config"])
         | {"skops": [base64.b64decode(m.skops) for m in payload.models]})
     put(tables.failures, _fields(payload.failures, tables.payload_fields(tables.failures)))
+    if payload.final is not None:
+        final = payload.final
+        connection.execute(insert(tables.final_selections).values(
+            assessment_id=assessment_id, selection=final.model_dump(mode="json", exclude={"model_skops"}),
+            model=_bytes_or_none(final.model_skops)))
 
 
 def _bytes_or_none(text: str | None) -> bytes | None:

@@ -53,3 +53,17 @@ def test_reading_a_missing_store_file_creates_nothing(tmp_path):
     with pytest.raises(FileNotFoundError):
         foldwise.load(str(missing), "00000000-0000-0000-0000-000000000000")
     assert not missing.exists()
+
+
+def test_the_final_selection_and_its_model_load_back_on_each_backend(store_url):
+    from sklearn.datasets import load_wine
+    from sklearn.tree import DecisionTreeClassifier
+
+    X, y = load_wine(return_X_y=True)  # bundled open data
+    assessment = foldwise.nested_cv({"tree": (DecisionTreeClassifier(random_state=0), {"max_depth": [1, 3]})},
+                                    X, y, outer=2, inner=2, n_jobs=1, progress=False, final=True)
+    assessment.save(store_url)
+    loaded = foldwise.load(store_url, assessment.uuid)
+    assert loaded.payload == assessment.payload
+    assert loaded.final_choice == assessment.final_choice is not None
+    np.testing.assert_array_equal(loaded.final_model.predict_proba(X), assessment.final_model.predict_proba(X))

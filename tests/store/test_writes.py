@@ -45,7 +45,8 @@ def expected_counts(*payloads) -> dict[str, int]:
              "fold_choices": lambda p: len(p.family_winners) + len(p.overall_winners),
              "predictions": lambda p: len(p.predictions), "failures": lambda p: len(p.failures),
              "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0,
-             "ensemble_members": lambda p: 0, "inner_summaries": _summary_count}
+             "ensemble_members": lambda p: 0, "inner_summaries": _summary_count,
+             "final_selections": lambda p: int(p.final is not None)}
     return {name: sum(sizes[name](p) for p in payloads) for name in TABLES}
 
 
