@@ -47,9 +47,16 @@ def main(argv: list[str] | None = None) -> int:
     check = commands.add_parser("check", help="integrity check and row counts of a store")
     check.add_argument("--db")
 
+    report = commands.add_parser("report", help="write a self-contained HTML report of one assessment",
+                                 description="One HTML file a reviewer can open anywhere, with no network: methods, "
+                                             "nested estimate, families, fold winners, the model to ship, failures.")
+    report.add_argument("uuid", help="the assessment, as `foldwise list` shows it")
+    report.add_argument("-o", "--output", help="file to write (default: report-<uuid>.html)")
+    report.add_argument("--db", help="path or SQLAlchemy URL of the store (default: $FOLDWISE_DB)")
+
     args = parser.parse_args(argv)
     handlers = {"serve": _serve, "demo": _demo, "resend": _resend, "list": _list, "keys": _keys, "share": _share,
-                "backup": _backup, "check": _check}
+                "backup": _backup, "check": _check, "report": _report}
     return handlers[args.command](args)
 
 
@@ -193,6 +200,25 @@ def _list(args) -> int:
     for row in frame.itertuples():
         print(f"{row.uuid}  {row.created_at:%Y-%m-%d %H:%M}  {row.name}  [{row.dataset or '-'}]  "
               f"{row.selection_metric} {row.estimate_mean:.4f}{_fold_count(row)}")
+    return 0
+
+
+def _report(args) -> int:
+    from pathlib import Path
+
+    from foldwise.loading import load
+    from foldwise.settings import Settings
+    from foldwise.web.report import report_html
+
+    store = args.db or Settings.from_env().db_url
+    try:
+        assessment = load(store, args.uuid)
+    except (LookupError, FileNotFoundError) as error:
+        print(f"foldwise: {error}", file=sys.stderr)
+        return 2
+    output = Path(args.output or f"report-{assessment.uuid}.html")
+    output.write_text(report_html(assessment), encoding="utf-8")
+    print(f"wrote {output} ({output.stat().st_size:,} bytes)")
     return 0
 
 

@@ -15,8 +15,8 @@ import foldwise
 from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api, sharing
-from foldwise.web.formatting import FILTERS
+from foldwise.web import api, report, sharing
+from foldwise.web.formatting import CAUTION, FILTERS
 from foldwise.web.pages import (
     assessment_detail,
     assessments_compare,
@@ -32,9 +32,6 @@ from foldwise.web.pages import (
 )
 from foldwise.web.resources import plotly_js, static_dir, templates_dir
 from foldwise.web.security import Guard
-
-CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
-           "safety needs external validation and must follow local regulation and licensed practice.")
 
 
 def create_app(settings: Settings) -> FastAPI:
@@ -58,6 +55,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(api.health)
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
+    app.include_router(report.router)
     app.include_router(score_distributions.router)
     app.include_router(fold_winners.router)
     app.include_router(optimism.router)

@@ -6,6 +6,9 @@ import math
 
 from markupsafe import Markup
 
+CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
+           "safety needs external validation and must follow local regulation and licensed practice.")
+
 
 def score(value, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
