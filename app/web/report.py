@@ -29,6 +29,7 @@ from foldwise.store import load_payload
 from foldwise.web.fold_scores import family_fold_scores, fold_sizes
 from foldwise.web.formatting import CAUTION, FILTERS, params_text
 from foldwise.web.resources import templates_dir
+from foldwise.web.shipping import FinalSummary, final_summary
 
 router = APIRouter()
 
@@ -70,16 +71,6 @@ class Comparison:
     bayes_b: float
     rope: float
     verdict: str
-
-
-@dataclass(frozen=True)
-class FinalSummary:
-    family: str
-    params: str
-    same_config: int
-    same_family: int
-    n_folds: int
-    parameters: list[tuple[str, str, int]]  # name, value chosen on all rows, outer folds that chose it
 
 
 @dataclass(frozen=True)
@@ -226,16 +217,7 @@ def _final(assessment: Assessment) -> FinalSummary | None:
     choice = assessment.final_choice
     if choice is None:
         return None
-    winners = assessment.winners
-    chosen_params = choice.params
-    parameters = []
-    for key, value in chosen_params.items():
-        same = sum(row.family == choice.family and row.params.get(key) == value for row in winners.itertuples())
-        parameters.append((key.rsplit("__", 1)[-1], str(value), same))
-    return FinalSummary(family=choice.family, params=params_text(chosen_params),
-                        same_config=int((winners["config"] == choice.config).sum()),
-                        same_family=int((winners["family"] == choice.family).sum()),
-                        n_folds=len(winners), parameters=parameters)
+    return final_summary(choice.family, choice.config, choice.params, assessment.winners)
 
 
 def _failures(assessment: Assessment) -> list[tuple[int, str]]:
