@@ -173,12 +173,14 @@ def _weighted_auc(weights: np.ndarray, scores: np.ndarray, positive: np.ndarray)
     positions ``searchsorted`` gives; all in integers, so equal AUCs stay exactly equal.
     Returns shape (n_resamples, n_columns).
     """
-    counts = np.ascontiguousarray(weights.T).astype(np.int64)  # rows × resamples: a row gather is contiguous
+    # rows × resamples, so that gathering rows is contiguous; int32 halves the memory traffic, and the
+    # sums below stay far from its limit (at most twice the rows squared, summed in int64).
+    counts = np.ascontiguousarray(weights.T).astype(np.int32)
     is_pos = positive == 1
     pos_counts, neg_counts = counts[is_pos], counts[~is_pos]
     n_pos, n_neg = pos_counts.sum(axis=0), neg_counts.sum(axis=0)
     out = np.empty((weights.shape[0], scores.shape[1]))
-    cumulative = np.zeros((neg_counts.shape[0] + 1, weights.shape[0]), dtype=np.int64)
+    cumulative = np.zeros((neg_counts.shape[0] + 1, weights.shape[0]), dtype=np.int32)
     for c in range(scores.shape[1]):
         neg_scores, pos_scores = scores[~is_pos, c], scores[is_pos, c]
         order = np.argsort(neg_scores, kind="stable")
@@ -186,7 +188,7 @@ def _weighted_auc(weights: np.ndarray, scores: np.ndarray, positive: np.ndarray)
         sorted_neg = neg_scores[order]
         below = cumulative[np.searchsorted(sorted_neg, pos_scores, side="left")]
         below += cumulative[np.searchsorted(sorted_neg, pos_scores, side="right")]  # ties counted twice: ½
-        twice = np.einsum("ib,ib->b", pos_counts, below)
+        twice = np.einsum("ib,ib->b", pos_counts, below, dtype=np.int64)
         with np.errstate(divide="ignore", invalid="ignore"):
             out[:, c] = twice / (2.0 * n_pos * n_neg)
     return np.where(((n_pos > 0) & (n_neg > 0))[:, None], out, np.nan)
