@@ -55,6 +55,23 @@ def is_constant(values: np.ndarray) -> bool:
     return bool(np.all(values == values[0]))
 
 
+def mean_fold_size(size, name: str, keep: np.ndarray, *, unit: str = "outer fold") -> float:
+    """The mean of the kept folds' sizes: ``size`` is one number (taken as the mean) or one per fold.
+
+    ``keep`` is the boolean mask of the folds used; refuses sizes that are not finite and positive.
+    """
+    try:
+        values = np.atleast_1d(np.asarray(size, dtype=float))
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"{name} must be a fold size or one size per {unit}; got {size!r}") from exc
+    if values.ndim != 1 or values.size not in (1, keep.size):
+        raise ValueError(f"{name} must be one number (the mean fold size) or one size per {unit} "
+                         f"({keep.size}); got an array of shape {values.shape}")
+    if not (np.all(np.isfinite(values)) and np.all(values > 0)):
+        raise ValueError(f"{name} must hold finite, positive fold sizes; got {values[:5].tolist()}")
+    return float(values[0] if values.size == 1 else np.mean(values[keep]))
+
+
 def _preview(values) -> str:
     text = repr(values)
     return text if len(text) <= 60 else text[:57] + "..."

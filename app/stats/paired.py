@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from ._arrays import is_constant, paired_scores, require_pairs
+from ._arrays import is_constant, mean_fold_size, paired_scores, require_pairs
 
 # A verdict names an outcome only when its posterior probability reaches this (common practice).
 _DECISIVE = 0.95
@@ -96,7 +96,7 @@ def corrected_resampled_ttest(a, b, *, n_train, n_test) -> TTestResult:
     (3, 2, 0.02, True)
     """
     d, n_dropped, keep = _differences(a, b, what="corrected_resampled_ttest")
-    ratio = _mean_fold_size(n_test, "n_test", keep) / _mean_fold_size(n_train, "n_train", keep)
+    ratio = _fold_size(n_test, "n_test", keep) / _fold_size(n_train, "n_train", keep)
     j = d.size
     mean, sd = _mean_sd(d)
     if sd == 0:
@@ -270,7 +270,7 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     """
     _check_rope(rope)
     d, n_dropped, keep = _differences(a, b, what="compare_paired")
-    mean_train, mean_test = _mean_fold_size(n_train, "n_train", keep), _mean_fold_size(n_test, "n_test", keep)
+    mean_train, mean_test = _fold_size(n_train, "n_train", keep), _fold_size(n_test, "n_test", keep)
     ttest = corrected_resampled_ttest(a, b, n_train=n_train, n_test=n_test)
     bayes = bayesian_correlated_ttest(a, b, rho=mean_test / (mean_train + mean_test), rope=rope)
     wilcoxon = wilcoxon_signed_rank(a, b)
@@ -301,18 +301,8 @@ def _mean_sd(d: np.ndarray) -> tuple[float, float]:
     return float(np.mean(d)), float(np.std(d, ddof=1))
 
 
-def _mean_fold_size(size, name: str, keep: np.ndarray) -> float:
-    try:
-        values = np.atleast_1d(np.asarray(size, dtype=float))
-    except (TypeError, ValueError) as exc:
-        raise ValueError(f"{name} must be a fold size or one size per paired outer fold; "
-                         f"got {size!r}") from exc
-    if values.ndim != 1 or values.size not in (1, keep.size):
-        raise ValueError(f"{name} must be one number (the mean fold size) or one size per paired outer fold "
-                         f"({keep.size}); got an array of shape {values.shape}")
-    if not (np.all(np.isfinite(values)) and np.all(values > 0)):
-        raise ValueError(f"{name} must hold finite, positive fold sizes; got {values[:5].tolist()}")
-    return float(values[0] if values.size == 1 else np.mean(values[keep]))
+def _fold_size(size, name: str, keep: np.ndarray) -> float:
+    return mean_fold_size(size, name, keep, unit="paired outer fold")
 
 
 def _verdict(bayes: BayesResult, *, rope: float, constant: bool, names: tuple[str, str]) -> str:
