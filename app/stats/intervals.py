@@ -94,7 +94,7 @@ def corrected_t_interval(scores, *, n_train, n_test, level: float = 0.95) -> Int
     >>> iv.method, iv.n_used, iv.n_failed, round(iv.estimate, 3)
     ('corrected_t', 5, 1, 0.81)
     >>> round(iv.low, 4), round(iv.high, 4)
-    (0.7835, 0.8365)
+    (0.7684, 0.8516)
     """
     _check_level(level)
     values = score_vector(scores, name="scores")
@@ -147,7 +147,7 @@ def student_t_spread(scores, *, level: float = 0.95) -> Interval:
     --------
     >>> iv = student_t_spread([0.80, 0.84, 0.78, 0.82, 0.81])
     >>> iv.method, round(iv.low, 4), round(iv.high, 4)
-    ('student_t_spread', 0.7824, 0.8376)
+    ('student_t_spread', 0.7822, 0.8378)
     """
     _check_level(level)
     values = score_vector(scores, name="scores")
