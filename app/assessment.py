@@ -9,8 +9,9 @@ from functools import cached_property
 import pandas as pd
 
 from foldwise import display, frames
-from foldwise.definitions import NestedEstimate, nested_estimate
+from foldwise.definitions import HEADLINE_LEVEL, HEADLINE_METHOD, NestedEstimate, nested_estimate
 from foldwise.payload import AssessmentPayload
+from foldwise.stats.intervals import Interval, bbc_interval, student_t_spread
 
 
 @dataclass(frozen=True)
@@ -81,9 +82,39 @@ class Assessment:
     def nested_estimate(self) -> NestedEstimate:
         """The score of the selection procedure: mean and sd of the overall fold winners' outer scores,
         with the outer folds it used (``n_used`` of ``n_folds``; ``described`` says it in words)."""
-        design = self.payload.design
-        return nested_estimate(self.winners["outer_score"].to_numpy(dtype=float),
-                               n_folds=design.n_repeats * design.n_outer_folds)
+        return self._estimate(HEADLINE_LEVEL)
+
+    def interval(self, level: float = HEADLINE_LEVEL, method: str = HEADLINE_METHOD, *,
+                 n_bootstrap: int = 1000, random_state=0) -> Interval:
+        """An interval for the score of the select-and-refit procedure at this sample size, in the metric's own
+        orientation (scikit-learn's: greater is better).
+
+        ``method``: ``"corrected_t"`` (the headline: the corrected resampled t interval around the nested
+        estimate, with or without repeats), ``"bbc"`` (the bootstrap bias-corrected interval from the pooled
+        outer-test predictions of every configuration; needs a run that kept them, and uses the first repeat)
+        or ``"student_t_spread"`` (the plain t interval over the outer folds: a description of their spread,
+        not a confidence interval). See ``foldwise.stats.intervals``.
+        """
+        if method == "corrected_t":
+            return self._estimate(level).interval
+        if method == "student_t_spread":
+            return student_t_spread(self.winners["outer_score"].to_numpy(dtype=float), level=level)
+        if method == "bbc":
+            from foldwise.pooling import pooled_predictions
+
+            pooled, y_true = pooled_predictions(self.payload)
+            return bbc_interval(pooled, y_true, metric=self.selection_metric, classes=self.payload.design.classes,
+                                level=level, n_bootstrap=n_bootstrap, random_state=random_state)
+        raise ValueError(f"method must be 'corrected_t', 'bbc' or 'student_t_spread'; received {method!r}")
+
+    def _estimate(self, level: float) -> NestedEstimate:
+        design, winners = self.payload.design, self.winners
+        sizes = {(f.repeat, f.outer_fold): (f.n_train, len(f.test_indices)) for f in self.payload.outer_folds}
+        folds = list(zip(winners["repeat"], winners["outer_fold"], strict=True))
+        return nested_estimate(winners["outer_score"].to_numpy(dtype=float),
+                               n_folds=design.n_repeats * design.n_outer_folds,
+                               n_train=[sizes[fold][0] for fold in folds], n_test=[sizes[fold][1] for fold in folds],
+                               level=level)
 
     @property
     def final_choice(self) -> FinalChoice | None:

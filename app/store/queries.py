@@ -12,14 +12,15 @@ import pandas as pd
 from sqlalchemy import Connection, Engine, Row, Table, and_, or_, select, tuple_
 
 from foldwise import frames
-from foldwise.definitions import NestedEstimate
+from foldwise.definitions import HEADLINE_LEVEL, HEADLINE_METHOD, NestedEstimate
 from foldwise.payload import Configuration, Design, Family
+from foldwise.stats.intervals import Interval
 from foldwise.store import tables
 from foldwise.store.lookup import created_at_of, find_assessment, require_assessment
 
 INDEX_COLUMNS = ["uuid", "name", "dataset", "created_at", "task", "n_repeats", "n_outer_folds",
                  "n_inner_folds", "n_configs", "families", "selection_metric", "estimate_mean", "estimate_sd",
-                 "estimate_n_used", "estimate_n_folds"]
+                 "estimate_n_used", "estimate_n_folds", "estimate_low", "estimate_high"]
 FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "message"]
 _SCORES = {"score": "float64", "fit_time": "float64", "score_time": "float64"}
 
@@ -84,7 +85,8 @@ def list_assessments(engine: Engine, *, dataset: str | None = None, name: str | 
     index["estimate_n_folds"] = index["n_repeats"] * index["n_outer_folds"]
     index = index.astype({"n_repeats": "int64", "n_outer_folds": "int64", "n_inner_folds": "int64",
                           "n_configs": "int64", "estimate_mean": "float64", "estimate_sd": "float64",
-                          "estimate_n_used": "int64", "estimate_n_folds": "int64"})
+                          "estimate_n_used": "int64", "estimate_n_folds": "int64", "estimate_low": "float64",
+                          "estimate_high": "float64"})
     return index[INDEX_COLUMNS]
 
 
@@ -171,8 +173,11 @@ def estimate_of(row: Row) -> NestedEstimate:
     n_folds = row.n_repeats * row.n_outer_folds
     # Stored before the count was kept and never filled (no outer score at all): none used.
     n_used = row.estimate_n_used if row.estimate_n_used is not None else 0
-    return NestedEstimate(mean=_nan_for_none(row.estimate_mean), sd=_nan_for_none(row.estimate_sd),
-                          n_used=n_used, n_folds=n_folds)
+    mean = _nan_for_none(row.estimate_mean)
+    interval = Interval(estimate=mean, low=_nan_for_none(row.estimate_low), high=_nan_for_none(row.estimate_high),
+                        level=HEADLINE_LEVEL, method=HEADLINE_METHOD, n_used=n_used, n_failed=n_folds - n_used)
+    return NestedEstimate(mean=mean, sd=_nan_for_none(row.estimate_sd), n_used=n_used, n_folds=n_folds,
+                          interval=interval)
 
 
 def configurations_of(connection: Connection, assessment_id: int) -> list[Configuration]:

@@ -58,6 +58,8 @@ assessments = Table(
     Column("estimate_mean", Double),
     Column("estimate_sd", Double),
     Column("estimate_n_used", Integer, comment="outer folds the nested estimate used"),
+    Column("estimate_low", Double, comment="the headline 95% interval (corrected resampled t): low end"),
+    Column("estimate_high", Double, comment="the headline 95% interval (corrected resampled t): high end"),
     Column("content_digest", String(64), comment="digest of the assessment's content; null if stored before 0005"),
     Column("n_inner_scores", Integer, nullable=False),
     Column("n_outer_scores", Integer, nullable=False),

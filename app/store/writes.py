@@ -70,7 +70,8 @@ def _assessment_row(payload: AssessmentPayload) -> dict:
         "design": design.model_dump(mode="json"), "versions": payload.versions, "seeds": payload.seeds,
         "fingerprint": payload.fingerprint(), "total_fit_time": payload.total_fit_time,
         "estimate_mean": _or_none(estimate.mean), "estimate_sd": _or_none(estimate.sd),
-        "estimate_n_used": estimate.n_used,
+        "estimate_n_used": estimate.n_used, "estimate_low": _or_none(estimate.interval.low),
+        "estimate_high": _or_none(estimate.interval.high),
         "n_inner_scores": len(payload.inner_scores), "n_outer_scores": len(payload.outer_scores),
         "n_failures": len(payload.failures),
     }
@@ -86,7 +87,9 @@ def nested_estimate_of(payload: AssessmentPayload) -> NestedEstimate:
                                            columns.score, strict=True)
                   if m == 0 and (r, o, c) in chosen)
     design = payload.design
-    return nested_estimate([score for _, _, score in rows], n_folds=design.n_repeats * design.n_outer_folds)
+    sizes = {(fold.repeat, fold.outer_fold): (fold.n_train, len(fold.test_indices)) for fold in payload.outer_folds}
+    return nested_estimate([score for _, _, score in rows], n_folds=design.n_repeats * design.n_outer_folds,
+                           n_train=[sizes[r, o][0] for r, o, _ in rows], n_test=[sizes[r, o][1] for r, o, _ in rows])
 
 
 def _or_none(value: float) -> float | None:

@@ -25,6 +25,7 @@ from foldwise.web.pages import (
     fold_winners,
     index,
     inner_detail,
+    interval_method,
     optimism,
     paired_comparison,
     ranking,
@@ -56,6 +57,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
     app.include_router(report.router)
+    app.include_router(interval_method.router)
     app.include_router(score_distributions.router)
     app.include_router(fold_winners.router)
     app.include_router(optimism.router)

@@ -165,7 +165,7 @@ def test_list_assessments_newest_first_with_case_insensitive_filters(engine, mak
     assert list(index.columns) == ["uuid", "name", "dataset", "created_at", "task", "n_repeats",
                                    "n_outer_folds", "n_inner_folds", "n_configs", "families",
                                    "selection_metric", "estimate_mean", "estimate_sd", "estimate_n_used",
-                                   "estimate_n_folds"]
+                                   "estimate_n_folds", "estimate_low", "estimate_high"]
     assert list(index["uuid"]) == [str(c.uuid), str(b.uuid), str(a.uuid)]
     assert list(index["created_at"]) == [pd.Timestamp(p.created_at).tz_convert("UTC") for p in (c, b, a)]
     first = index.iloc[0]
