@@ -27,6 +27,7 @@ from pathlib import Path
 import joblib
 import numpy as np
 import skops.io
+from sklearn.base import clone
 
 from foldwise.runner.building import package_versions
 from foldwise.runner.fitting import FitResult, FitTask
@@ -99,6 +100,7 @@ class Journal:
         if self.path.exists() and not _is_journal(self.path):
             raise ValueError(f"{self.path} exists and is not a foldwise journal; pass a new path for checkpoint "
                              f"(foldwise neither reads nor overwrites other files)")
+        self.path.parent.mkdir(parents=True, exist_ok=True)
         if mode == "overwrite":
             for leftover in (self.path, *(self.path.with_name(self.path.name + end) for end in ("-wal", "-shm"))):
                 leftover.unlink(missing_ok=True)
@@ -108,7 +110,11 @@ class Journal:
         self._connection.executescript(_SCHEMA)
         stored = dict(self._connection.execute("SELECT name, value FROM journal_meta"))
         if stored:
-            _refuse_other_runs(self.path, stored, expected)
+            try:
+                _refuse_other_runs(self.path, stored, expected)
+            except JournalMismatch:
+                self._connection.close()
+                raise
         else:
             with self._connection:
                 self._connection.execute("BEGIN")
@@ -203,7 +209,7 @@ def _estimator_digest(estimator) -> str:
     """The estimator's parameters (and class) by ``joblib.hash``; by its repr, memory addresses taken out,
     for one that does not pickle (a lambda in a FunctionTransformer)."""
     try:
-        return joblib.hash(estimator, hash_name="sha1")
+        return joblib.hash(clone(estimator), hash_name="sha1")  # its parameters, not what a fit left in it
     except Exception:
         return _digest(re.sub(r" at 0x[0-9a-fA-F]+", "", repr(estimator.get_params(deep=True))))
 

@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 from counted_fits import N_FITS, assess
 from pandas.testing import assert_frame_equal
+from sklearn.model_selection import GridSearchCV
 
 from foldwise import nested_cv
 from foldwise.assessment import Assessment
@@ -187,3 +188,12 @@ def test_kept_models_come_back_from_the_journal(tmp_path, cancer, monkeypatch):
         [(m.repeat, m.outer_fold, m.config, m.skops) for m in first.payload.models]
     assert len(first.payload.models) == 2
     assert np.isfinite(first.outer_scores["score"]).all()
+
+
+def test_a_search_fitted_whole_refuses_a_checkpoint(tmp_path, cancer):
+    X, y = cancer
+    search = GridSearchCV(counted_fits.CountedClassifier(), {"max_depth": [1, 2]}, cv=2,
+                          refit=lambda results: 0)  # a callable refit: foldwise fits the search whole
+    with pytest.raises(ValueError, match="checkpoint needs a space foldwise expands"):
+        nested_cv(search, X, y, outer=2, checkpoint=tmp_path / "run.journal", progress=False)
+    assert not (tmp_path / "run.journal").exists()
