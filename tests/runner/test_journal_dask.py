@@ -29,7 +29,8 @@ def test_a_cluster_run_journal_resumes_locally_with_nothing_to_fit(tmp_path, can
         return nested_cv(space, X, y, outer=3, inner=2, scoring="roc_auc", progress=False, checkpoint=path,
                          **options)
 
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster, \
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=":0") as cluster, \
             Client(cluster), joblib.parallel_config(backend="dask"):
         remote = run(n_jobs=2)
     monkeypatch.setenv(counted_fits.LOG, str(log))
