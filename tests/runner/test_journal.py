@@ -21,7 +21,10 @@ import numpy as np
 import pytest
 from counted_fits import N_FITS, assess
 from pandas.testing import assert_frame_equal
+from sklearn.ensemble import RandomForestClassifier
 from sklearn.model_selection import GridSearchCV
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
 
 from foldwise import nested_cv
 from foldwise.assessment import Assessment
@@ -197,3 +200,31 @@ def test_a_search_fitted_whole_refuses_a_checkpoint(tmp_path, cancer):
     with pytest.raises(ValueError, match="checkpoint needs a space foldwise expands"):
         nested_cv(search, X, y, outer=2, checkpoint=tmp_path / "run.journal", progress=False)
     assert not (tmp_path / "run.journal").exists()
+
+
+def test_a_journal_missing_part_of_shared_and_grown_fits_resumes_to_the_same_scores(tmp_path, cancer):
+    """Jobs that share a pipeline's steps or grow one forest are cut where the journal stops: the fits left
+    are done as a smaller group, with the same scores (the final selection's fits are journaled too)."""
+    X, y = cancer
+    space = {"forest": (make_pipeline(StandardScaler(), RandomForestClassifier(random_state=0)),
+                        {"randomforestclassifier__n_estimators": [4, 8],
+                         "randomforestclassifier__max_depth": [2, 3]})}
+
+    def run(**options):
+        return nested_cv(space, X, y, outer=2, inner=2, scoring="roc_auc", progress=False, final=True, **options)
+
+    path = tmp_path / "run.journal"
+    whole = run(checkpoint=path)
+    connection = sqlite3.connect(path)
+    keys = [key for (key,) in connection.execute("SELECT key FROM journal_fits ORDER BY key")]
+    assert len(keys) == 2 * 4 * (2 + 1) + 2 * 4  # every fit, the final selection's inner folds included
+    dropped = keys[1::2]  # every other fit: each job loses some of its configurations
+    connection.executemany("DELETE FROM journal_fits WHERE key = ?", [(key,) for key in dropped])
+    connection.commit()
+    connection.close()
+    resumed = run(checkpoint=path)
+    assert len(journaled(path)) == len(keys)
+    assert_same_results(resumed, whole)
+    left, right = resumed.payload.final, whole.payload.final
+    assert (left.config, left.family_winners, left.inner_scores.score) == \
+        (right.config, right.family_winners, right.inner_scores.score)
