@@ -167,7 +167,8 @@ class _Runner:
         self.step_of = {c: step for chain in chains for step, c in enumerate(chain)}
         self.shared = shared
         self.group_of = {c: ("chain", n) for c, n in self.chain_of.items()}
-        self.group_of.update((c, ("prefix", n)) for n, group in enumerate(prefix_groups(space, shared)) for c in group)
+        self.group_of.update((c, ("prefix", n)) for n, group in enumerate(prefix_groups(space, shared, self.chain_of))
+                             for c in group)
         self.journal = journal
 
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:

@@ -6,7 +6,8 @@ class, the same parameters) therefore fit those steps identically on the same ro
 them once per fold and fits each configuration's remaining steps on the shared output. Sharing is
 planned up front as a tree: configurations are grouped by their first step, each group by its second,
 and so on, so a step is fitted once for every distinct way of reaching it. A fold's configurations
-sharing their first step form one job of the pool.
+sharing their first step form one job of the pool (up to eight of them: a larger group is cut where
+the fewest steps are shared, and each part fits its shared steps once).
 
 The fitted steps are the very objects a separate ``Pipeline.fit`` would make (``fit_transform``
 where the step has it, as the pipeline calls it), and each configuration's last step is scored on the
@@ -41,6 +42,7 @@ from foldwise.runner.growth import grow_chain
 from foldwise.runner.space import Space
 
 _IDENTITY = (None, "passthrough")
+MOST_PER_JOB = 8
 
 
 def shared_steps(space: Space) -> dict[int, tuple]:
@@ -66,12 +68,33 @@ def shared_steps(space: Space) -> dict[int, tuple]:
     return keys
 
 
-def prefix_groups(space: Space, keys: dict[int, tuple]) -> list[list[int]]:
-    """Configurations of one family whose first steps share a fit (two or more), in grid order."""
+def prefix_groups(space: Space, keys: dict[int, tuple], chain_of: dict[int, int]) -> list[list[int]]:
+    """Configurations of one family whose first steps share a fit, two or more to a job.
+
+    A job holds at most ``MOST_PER_JOB`` configurations (a growth chain is never cut), those sharing the
+    most steps together: sharing a fit eight ways saves most of what it can, and a large grid still makes
+    enough jobs to keep a pool's workers busy.
+    """
     groups: dict[tuple, list[int]] = {}
     for position, steps in keys.items():
         groups.setdefault((space.candidates[position].family, steps[0]), []).append(position)
-    return [members for members in groups.values() if len(members) > 1]
+    jobs = []
+    for members in groups.values():
+        first_seen: dict[tuple, int] = {}
+        for position in members:  # where each path of shared steps first appears, in grid order
+            for depth in range(1, len(keys[position]) + 1):
+                first_seen.setdefault(keys[position][:depth], position)
+        chains: dict[int, list[int]] = {}
+        for position in sorted(members, key=lambda p: [first_seen[keys[p][:d]] for d in range(1, len(keys[p]) + 1)]):
+            chains.setdefault(chain_of[position], []).append(position)
+        job: list[int] = []
+        for chain in chains.values():
+            if job and len(job) + len(chain) > MOST_PER_JOB:
+                jobs.append(job)
+                job = []
+            job += chain
+        jobs.append(job)
+    return [job for job in jobs if len(job) > 1]
 
 
 def run_shared(tasks: list[FitTask], estimator, params: list[dict], keys: list[tuple], chains: list,

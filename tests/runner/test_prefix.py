@@ -21,6 +21,9 @@ from sklearn.linear_model import LogisticRegression
 from sklearn.pipeline import Pipeline
 
 from foldwise import nested_cv
+from foldwise.runner.growth import growth_chains
+from foldwise.runner.prefix import prefix_groups, shared_steps
+from foldwise.runner.space import space_from
 
 OUTER, INNER = 3, 3
 FOLDS = OUTER * (INNER + 1)  # inner folds and outer training sets: the fits of one configuration
@@ -125,3 +128,21 @@ def test_a_failing_shared_step_fails_each_configuration_as_its_own_fit_would(can
     assert len(shared.payload.failures) == FOLDS * 2
     scores = np.concatenate([shared.inner_scores["score"], shared.outer_scores["score"]])
     assert np.isnan(scores).sum() == FOLDS * 2  # the other configurations scored
+
+
+def test_a_large_group_is_cut_into_jobs_of_eight_keeping_shared_steps_and_chains_together():
+    grid = {"pca__n_components": [3, 5], "model__C": [0.01 * 2 ** i for i in range(10)]}
+    space = space_from({"logistic": (_pipeline(LogisticRegression()), grid)})
+    keys = shared_steps(space)
+    jobs = prefix_groups(space, keys, {c: c for c in range(len(space.candidates))})
+    assert sorted(c for job in jobs for c in job) == list(range(20))
+    assert [len(job) for job in jobs] == [8, 8, 4]
+    components = [[space.candidates[c].params["pca__n_components"] for c in job] for job in jobs]
+    assert components == [[3] * 8, [3, 3] + [5] * 6, [5] * 4]  # the grid's PCA settings, one after the other
+
+    forests = space_from({"forest": (_pipeline(RandomForestClassifier(random_state=0)),
+                                     {"model__n_estimators": list(range(1, 11)), "model__max_depth": [2, 3]})})
+    chains = growth_chains(forests, n_samples=100)
+    chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
+    jobs = prefix_groups(forests, shared_steps(forests), chain_of)
+    assert sorted(sorted(job) for job in jobs) == sorted(sorted(chain) for chain in chains)  # ten trees each: uncut
