@@ -72,7 +72,7 @@ def test_a_run_killed_half_way_resumes_to_the_uninterrupted_assessment(tmp_path,
     command = [sys.executable, "-c", "import counted_fits; counted_fits.main()", str(journal), str(tmp_path / "out")]
     # Its own session, so the kill takes the run's workers with it, as when a machine's job is killed.
     child = subprocess.Popen(command, env=environment, start_new_session=True)
-    deadline = time.monotonic() + 60
+    deadline = time.monotonic() + 180  # generous: a loaded machine starts the workers slowly
     while (not journal.exists() or len(journaled(journal)) < N_FITS // 2) and time.monotonic() < deadline:
         assert child.poll() is None, "the run ended before it could be killed"
         time.sleep(0.02)
