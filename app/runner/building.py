@@ -95,9 +95,12 @@ def package_versions() -> dict[str, str]:
 
 
 def _skops_text(estimator, what: str) -> str | None:
-    """base64 of the skops file of ``estimator``; None, with a warning, when skops cannot write it."""
+    """base64 of the skops file of ``estimator``; None, with a warning, when skops cannot write it.
+
+    ``bytes`` are a skops file already (the journal wrote the model when it arrived)."""
     try:
-        return base64.b64encode(skops.io.dumps(estimator)).decode("ascii")
+        data = estimator if isinstance(estimator, bytes) else skops.io.dumps(estimator)
+        return base64.b64encode(data).decode("ascii")
     except Exception as error:  # skops refuses some objects (open files, lambdas): the run still counts
         warnings.warn(f"skops could not write {what} ({type(error).__name__}: {error}); it is not kept, so "
                       f"an ensemble using it must be built from your own space", RuntimeWarning, stacklevel=4)

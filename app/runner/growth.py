@@ -21,6 +21,7 @@ import json
 import numbers
 import time
 from collections import defaultdict
+from functools import partial
 
 from sklearn.base import clone
 from sklearn.ensemble import (
@@ -80,25 +81,32 @@ def count_parameter(estimator) -> str | None:
 
 def run_chain(tasks: list[FitTask], estimator, params: list[dict], X, y, scorer, metrics,
               classes) -> list[FitResult]:
-    """Fit one chain's configurations on one fold by growing a single model, recording each step.
+    """Fit one chain's configurations on one fold by growing a single model, recording each step."""
+    train, test = tasks[0].train, tasks[0].test
+    models = [clone(estimator).set_params(**clone(step, safe=False)) for step in params]
+    return grow_chain(tasks, models, _safe_indexing(X, train), _safe_indexing(y, train), _safe_indexing(X, test),
+                      _safe_indexing(y, test), scorer, metrics, classes)
+
+
+def grow_chain(tasks: list[FitTask], models: list, X_train, y_train, X_test, y_test, scorer, metrics, classes, *,
+               keep=None) -> list[FitResult]:
+    """Grow one model through ``models`` (each configuration set up, unfitted, smallest count first).
 
     Each step's ``fit_time`` is the model's whole fit time, the earlier steps' included (what a fresh
     fit would have taken, near enough); ``inherited_time`` says how much of it the earlier steps took.
     A step that fails is recorded as any failed fit, and the next step starts a fresh model.
+    ``keep(task, model)``, if given, maps a finished model to what is kept.
     """
-    count, warm = count_parameter(estimator), _warm_start_parameter(estimator)
-    train, test = tasks[0].train, tasks[0].test
-    X_train, y_train = _safe_indexing(X, train), _safe_indexing(y, train)
-    X_test, y_test = _safe_indexing(X, test), _safe_indexing(y, test)
+    count, warm = count_parameter(models[0]), _warm_start_parameter(models[0])
     results, model, inherited = [], None, 0.0
-    for task, step in zip(tasks, params, strict=True):
+    for task, configured in zip(tasks, models, strict=True):
         started_cpu = time.process_time()
         if model is None:
-            model, inherited = clone(estimator).set_params(**clone(step, safe=False), **{warm: True}), 0.0
+            model, inherited = configured.set_params(**{warm: True}), 0.0
         else:
-            model.set_params(**{count: step[count]})
+            model.set_params(**{count: configured.get_params()[count]})
         result = fit_and_score(task, model, X_train, y_train, X_test, y_test, scorer, metrics, classes,
-                               started_cpu=started_cpu, keep=lambda fitted: _finished(fitted, warm))
+                               started_cpu=started_cpu, keep=partial(_kept, task=task, warm=warm, keep=keep))
         result.fit_time += inherited
         result.inherited_time = inherited
         inherited = result.fit_time
@@ -106,6 +114,11 @@ def run_chain(tasks: list[FitTask], estimator, params: list[dict], X, y, scorer,
             model = None
         results.append(result)
     return results
+
+
+def _kept(fitted, *, task, warm: str, keep):
+    finished = _finished(fitted, warm)
+    return finished if keep is None else keep(task, finished)
 
 
 def _finished(model, warm: str):

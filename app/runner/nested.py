@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sys
 import warnings
 from collections.abc import Iterable
 
@@ -20,6 +21,8 @@ from foldwise.runner.cluster import data_for_workers
 from foldwise.runner.final import final_selection, final_splits, final_tasks
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
+from foldwise.runner.journal import MODES, Journal, fingerprint
+from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
 from foldwise.runner.space import Space, space_from
 from foldwise.runner.splits import Layout, lay_out
@@ -28,7 +31,8 @@ from foldwise.runner.whole_search import nested_whole_search
 
 def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
               name=None, dataset=None, refit_all=True, keep_predictions=True,
-              keep_models=False, grow=True, final=False) -> Assessment:
+              keep_models=False, grow=True, final=False, share_prefixes=True, checkpoint=None,
+              checkpoint_mode="resume") -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
@@ -66,14 +70,30 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         trees or stages (``n_estimators``, ``max_iter``) as one model grown with ``warm_start``, once
         per fold: the same models as separate fits (see ``foldwise.runner.growth``), at the cost of
         the largest alone. Each configuration's fit time counts the growing it inherited.
+    share_prefixes : bool
+        Fit a ``Pipeline`` family's leading steps once per fold for all its configurations that set
+        them up alike (see ``foldwise.runner.prefix``): the same models as separate fits. Each
+        configuration's fit time is its shared steps' time plus its own.
+    checkpoint : path, optional
+        An SQLite file where each finished fit is written as it arrives (see
+        ``foldwise.runner.journal``). Run the same call again after a crash or a Ctrl-C and the fits
+        found there are not run again; the assessment is the one an uninterrupted run returns. A
+        journal of a different run (data, grid, scorer, splits, versions or options) is refused.
+    checkpoint_mode : {"resume", "overwrite"}
+        Resume from the journal at ``checkpoint`` (default), or start it afresh.
     """
     _check_lengths(X, y, groups)
+    if checkpoint_mode not in MODES:
+        raise ValueError(f"checkpoint_mode must be one of {MODES}, got {checkpoint_mode!r}")
     expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
     if isinstance(space, BaseSearchCV) and not expandable:
         if keep_models:
             raise ValueError(f"keep_models=True needs a space foldwise expands into configurations; a "
                              f"{type(space).__name__} is fitted whole on each outer fold, so pass a dict "
                              f"{{family: (estimator, grid)}} or a GridSearchCV / RandomizedSearchCV")
+        if checkpoint is not None:
+            raise ValueError(f"checkpoint needs a space foldwise expands into configurations; a "
+                             f"{type(space).__name__} is fitted whole on each outer fold")
         return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
                                    progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
@@ -88,7 +108,12 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
     chains = growth_chains(resolved, n_samples=_num_samples(X)) if grow else \
         [[c] for c in range(len(resolved.candidates))]
-    runner = _Runner(resolved, chains, *data_for_workers(X, y), scorer, metrics, classes)
+    journal = None if checkpoint is None else Journal(checkpoint, fingerprint(
+        X=X, y=y, groups=groups, space=resolved, layout=layout, metrics=metrics, classes=classes,
+        options={"refit_all": refit_all, "keep_predictions": keep_predictions, "keep_models": keep_models,
+                 "grow": grow, "share_prefixes": share_prefixes, "final": final}), mode=checkpoint_mode)
+    runner = _Runner(resolved, chains, shared_steps(resolved) if share_prefixes else {}, *data_for_workers(X, y),
+                     scorer, metrics, classes, journal)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
@@ -118,6 +143,8 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
             chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y)
             results.update(ran)
 
+    if journal is not None:
+        journal.close()
     _warn_failures(list(results.values()))
     for key in [key for key in results if key[0] == "final"]:
         del results[key]  # kept in the payload's own part, not among the outer folds
@@ -129,34 +156,64 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
 
 
 class _Runner:
-    def __init__(self, space: Space, chains: list[list[int]], X, y, scorer, metrics, classes):
+    """Hands the pool one job per fold and group of configurations that share work (a growth chain, or
+    a pipeline's shared leading steps), and journals each job's results as they arrive."""
+
+    def __init__(self, space: Space, chains: list[list[int]], shared: dict[int, tuple], X, y, scorer, metrics,
+                 classes, journal: Journal | None = None):
         self.space, self.X, self.y = space, X, y
         self.scorer, self.metrics, self.classes = scorer, metrics, classes
         self.chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
         self.step_of = {c: step for chain in chains for step, c in enumerate(chain)}
+        self.shared = shared
+        self.group_of = {c: ("chain", n) for c, n in self.chain_of.items()}
+        self.group_of.update((c, ("prefix", n)) for n, group in enumerate(prefix_groups(space, shared, self.chain_of))
+                             for c in group)
+        self.journal = journal
 
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
         results = {}
-        for done in pool(self._job(job) for job in self._jobs(tasks)):
-            done = done if isinstance(done, list) else [done]  # a chain's results, or one fit's
-            results.update((result.key, result) for result in done)
-            bar.update(len(done))
+        if self.journal is not None:
+            results = {task.key: found for task in tasks if (found := self.journal.result_for(task)) is not None}
+            tasks = [task for task in tasks if task.key not in results]
+            bar.update(len(results))
+        try:
+            for done in pool(self._job(job) for job in self._jobs(tasks)):
+                done = done if isinstance(done, list) else [done]  # a job's results, or one fit's
+                if self.journal is not None:
+                    self.journal.record(done)
+                results.update((result.key, result) for result in done)
+                bar.update(len(done))
+        except KeyboardInterrupt:  # the pool stops its workers as the exception leaves it
+            if self.journal is not None:
+                print(f"\nInterrupted: {self.journal.count()} finished fits are kept in the journal "
+                      f"{self.journal.path}. Run the same nested_cv call (checkpoint={str(self.journal.path)!r}) "
+                      f"to resume from them.", file=sys.stderr)
+                self.journal.close()
+            raise
         return results
 
     def _jobs(self, tasks: list[FitTask]) -> list[list[FitTask]]:
-        """The tasks of one fold whose configurations share a chain become one job, smallest first."""
+        """The tasks of one fold whose configurations share work become one job, chains smallest first."""
         jobs: dict[tuple, list[FitTask]] = {}
         for task in tasks:
-            jobs.setdefault((task.key[:-1], self.chain_of[task.config]), []).append(task)
-        return [sorted(job, key=lambda task: self.step_of[task.config]) for job in jobs.values()]
+            jobs.setdefault((task.key[:-1], self.group_of[task.config]), []).append(task)
+        return [sorted(job, key=self._order) for job in jobs.values()]
+
+    def _order(self, task: FitTask) -> tuple[int, int]:
+        return self.chain_of[task.config], self.step_of[task.config]
 
     def _job(self, job: list[FitTask]):
         candidates = self.space.candidates
         estimator = self.space.estimators[candidates[job[0].config].family]
+        params = [candidates[task.config].params for task in job]
         data = (self.X, self.y, self.scorer, self.metrics, self.classes)
+        if self.group_of[job[0].config][0] == "prefix":
+            return delayed(run_shared)(job, estimator, params, [self.shared[task.config] for task in job],
+                                       [self.chain_of[task.config] for task in job], *data)
         if len(job) == 1:
-            return delayed(run_fit)(job[0], estimator, candidates[job[0].config].params, *data)
-        return delayed(run_chain)(job, estimator, [candidates[task.config].params for task in job], *data)
+            return delayed(run_fit)(job[0], estimator, params[0], *data)
+        return delayed(run_chain)(job, estimator, params, *data)
 
 
 def _inner_tasks(layout: Layout, n_configs: int) -> Iterable[FitTask]:
