@@ -27,7 +27,7 @@ SCORES = ["repeat", "outer_fold", "family", "config", "metric", "score"]
 
 @pytest.fixture(scope="module")
 def client():
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster, \
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as cluster, \
             Client(cluster) as connected:
         yield connected
 
