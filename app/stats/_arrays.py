@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 
@@ -69,7 +71,9 @@ def mean_fold_size(size, name: str, keep: np.ndarray, *, unit: str = "outer fold
                          f"({keep.size}); got an array of shape {values.shape}")
     if not (np.all(np.isfinite(values)) and np.all(values > 0)):
         raise ValueError(f"{name} must hold finite, positive fold sizes; got {values[:5].tolist()}")
-    return float(values[0] if values.size == 1 else np.mean(values[keep]))
+    if values.size == 1:
+        return float(values[0])
+    return float(np.mean(values[keep])) if keep.any() else math.nan  # no fold used: no size to speak of
 
 
 def _preview(values) -> str:
