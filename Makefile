@@ -57,9 +57,9 @@ bench: $(VENV)/.installed-test
 
 # The coverage study of the intervals beside the nested estimate (tests/benchmarks/bench_coverage.py):
 # about an hour on 2 cores; replications are cached under .foldwise/coverage/, so it may be stopped and
-# run again to continue. Fails when the headline interval misses its coverage targets.
+# run again to continue (e.g. COVERAGE_ARGS="--minutes 30"). Fails when the headline interval misses its targets.
 coverage: $(VENV)/.installed-test
-	$(PY) tests/benchmarks/bench_coverage.py
+	$(PY) tests/benchmarks/bench_coverage.py $(COVERAGE_ARGS)
 
 clean:
 	rm -rf $(VENV) .foldwise build *.egg-info

@@ -117,6 +117,12 @@ def main(argv: list[str] | None = None) -> int:
                         targets.at_least(f"{where}: coverage at 95%", at[0.95]["coverage"], 0.92)
                         targets.at_most(f"{where}: width ÷ plain t of one run", at[0.95]["width"] / plain_single,
                                         1.6)
+    cpu = [r["cpu_seconds"] for name in PROCESSES for n in SIZES for r in _load(name, n, args.replications)
+           if "cpu_seconds" in r]
+    if cpu:  # what the whole study costs on idle cores, whatever else ran beside this run
+        targets.figure(f"CPU time per replication (mean of {len(cpu)})", sum(cpu) / len(cpu), "s")
+        targets.figure(f"whole study on {args.jobs} idle cores, estimated",
+                       sum(cpu) / len(cpu) * len(PROCESSES) * len(SIZES) * args.replications / args.jobs / 60, "min")
     targets.figure("wall time", (time.monotonic() - started) / 60, "min")
     if incomplete:
         print("incomplete (run again to continue): " + "; ".join(incomplete))

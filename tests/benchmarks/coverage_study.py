@@ -15,6 +15,7 @@ Shared by ``bench_coverage.py`` (the full study, ``make coverage``) and the seed
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 from functools import cache
 
@@ -113,6 +114,7 @@ def _truth_sample(name: str):
 
 def replicate(name: str, n: int, seed: int, *, repeats: int = 3, outer: int = 5, inner: int = 5) -> dict:
     """One replication: the intervals of both designs (first repeat alone, all repeats) and the truth."""
+    cpu_started = time.process_time()
     process = PROCESSES[name]
     X, y = process.draw(np.random.default_rng([seed, n, list(PROCESSES).index(name)]), n)
     classifier = process.task == "classification"
@@ -139,6 +141,7 @@ def replicate(name: str, n: int, seed: int, *, repeats: int = 3, outer: int = 5,
             for interval in found:
                 entry["intervals"][f"{interval.method}@{level:g}"] = [interval.estimate, interval.low, interval.high]
         result["designs"][design] = entry
+    result["cpu_seconds"] = time.process_time() - cpu_started  # this process only: the study's cost apart from load
     return result
 
 
