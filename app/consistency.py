@@ -56,8 +56,8 @@ def settle(payload) -> None:
     found.raise_if_any()
 
     computed = fold_winners(payload, inner)
-    _settle_overall(payload, computed, found)
     _settle_family(payload, computed, found)
+    _settle_overall(payload, computed, found)
     found.raise_if_any()
 
     if not design.refit_all:
@@ -201,7 +201,7 @@ def _check_rows(found: _Findings, block: str, grid: _Grid, *, complete: bool, de
         found.add((block, "score", row), f"{block}.score[{row}]: {_described(grid.key(int(grid.flat[row])))} "
                   f"appears twice (first at row {earlier}); a score block holds one row per key", len(later))
     if complete:
-        keys = ordered[np.r_[True, ~again]]
+        keys = ordered[np.r_[True, ~again]] if len(ordered) else ordered
         missing = grid.size - len(keys)
         if missing:
             gaps = np.flatnonzero(keys != np.arange(len(keys)))

@@ -57,6 +57,7 @@ def _storable_text(text: str) -> str:
 
 Text = Annotated[str, AfterValidator(_storable_text)]
 Label = bool | int | FiniteFloat | Text
+MetricName = Annotated[str, Field(min_length=1), AfterValidator(_storable_text)]
 
 
 class _Strict(BaseModel):
@@ -95,8 +96,7 @@ class Design(_Strict):
     inner_splitter: str = Field(default="", max_length=2_000)
     grouped: bool = False
     refit_all: bool = Field(default=True, description="every configuration refit on every outer fold")
-    metrics: list[Annotated[Text, Field(min_length=1)]] = Field(min_length=1, description="scorer names, "
-                                                                "unique and not empty; the first one selects")
+    metrics: list[MetricName] = Field(min_length=1, description="scorer names, unique; the first one selects")
     selected_by: Literal["inner_mean", "search"] = Field(
         default="inner_mean", description="how the fold winners were chosen: 'inner_mean' by foldwise's "
         "selection rule (greatest inner mean on the first metric, the first in grid order on ties), so the "
@@ -303,6 +303,15 @@ class AssessmentPayload(_Strict):
         _check_consistency(self)
         settle(self)  # the rules of an assessment that agrees with itself; fills in winners left out
         return self
+
+    def recheck(self) -> None:
+        """Run the consistency checks again on the fields as they are now, for a payload changed since it was
+        validated (``save`` does, before storing): the same refusals as a push would get."""
+        for block in (self.inner_scores, self.outer_scores):
+            block._arrays.clear()
+            block._same_lengths()
+        _check_consistency(self)
+        settle(self)
 
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
