@@ -17,6 +17,8 @@ holds assessments that follow these rules:
   here; winners sent must be the ones the rule chooses. An assessment whose search object chose by
   its own rule (``design.selected_by == "search"``: successive halving, a callable ``refit``) keeps
   the winners it names, one per fold and family as above.
+- The final selection (``final``, the selection over every row) holds one inner row per (inner fold,
+  configuration, metric), and its winners are the ones the rule picks from them.
 
 A refusal is a pydantic ``ValidationError`` located at the JSON path of the first problem found, its
 message counting the others, so the push route answers it as every other 422. The checks work on
@@ -62,6 +64,10 @@ def settle(payload) -> None:
 
     if not design.refit_all:
         _check_winners_refit(payload, outer, found)
+        found.raise_if_any()
+
+    if payload.final is not None:
+        _check_final(payload, found)
         found.raise_if_any()
 
 
@@ -183,11 +189,14 @@ class _Grid:
         return dict(reversed(key.items()))
 
 
-def _check_rows(found: _Findings, block: str, grid: _Grid, *, complete: bool, design_fields: str) -> None:
-    """Each key at most once; with ``complete``, every key of the grid once."""
+def _check_rows(found: _Findings, where: str | tuple[str, ...], grid: _Grid, *, complete: bool,
+                design_fields: str) -> None:
+    """Each key at most once; with ``complete``, every key of the grid once. ``where``: the block's path."""
+    where = (where,) if isinstance(where, str) else where
+    block = ".".join(where)
     if grid.flat is None:  # a grid this large is never complete: say how far apart they are
         if complete:
-            found.add((block,), f"{block}: holds {grid.n_rows} rows, where {design_fields} ask for {grid.size}")
+            found.add(where, f"{block}: holds {grid.n_rows} rows, where {design_fields} ask for {grid.size}")
         return
     if complete and grid.n_rows == grid.size and (np.bincount(grid.flat, minlength=grid.size) == 1).all():
         return  # the usual case, in one pass
@@ -198,7 +207,7 @@ def _check_rows(found: _Findings, block: str, grid: _Grid, *, complete: bool, de
         later = order[1:][again]
         row = int(later.min())
         earlier = int(np.flatnonzero(grid.flat == grid.flat[row])[0])
-        found.add((block, "score", row), f"{block}.score[{row}]: {_described(grid.key(int(grid.flat[row])))} "
+        found.add((*where, "score", row), f"{block}.score[{row}]: {_described(grid.key(int(grid.flat[row])))} "
                   f"appears twice (first at row {earlier}); a score block holds one row per key", len(later))
     if complete:
         keys = ordered[np.r_[True, ~again]] if len(ordered) else ordered
@@ -206,7 +215,7 @@ def _check_rows(found: _Findings, block: str, grid: _Grid, *, complete: bool, de
         if missing:
             gaps = np.flatnonzero(keys != np.arange(len(keys)))
             position = int(gaps[0]) if len(gaps) else len(keys)
-            found.add((block,), f"{block}: no row for {_described(grid.key(position))}; {design_fields} ask "
+            found.add(where, f"{block}: no row for {_described(grid.key(position))}; {design_fields} ask "
                       f"for {grid.size} rows, one per key (a failed fit is a row with a null score), and "
                       f"{missing} are missing", missing)
 
@@ -379,3 +388,35 @@ def _check_winners_refit(payload, outer: _Grid, found: _Findings) -> None:
         found.add(("outer_scores",), f"outer_scores: no row for {_described(key)}, a family winner "
                   "(family_winners); without design.refit_all each family winner is refit and scored on its "
                   "outer fold, every metric a row (a failed refit is a row with a null score)", len(missing))
+
+
+def _check_final(payload, found: _Findings) -> None:
+    """The final selection (every row as one fold): one row per (inner fold, configuration, metric), and,
+    chosen by the selection rule, the winners that rule picks from those scores."""
+    final, design = payload.final, payload.design
+    columns = final.inner_scores
+    names, sizes = ("inner_fold", "config", "metric"), (final.n_inner_folds, len(payload.configurations),
+                                                       len(design.metrics))
+    flat = None
+    if int(np.prod(sizes, dtype=object)) < _LARGEST_GRID:  # the reference checks keep each key in range
+        flat = np.zeros(len(columns.score), dtype=np.int64)
+        for name, size in zip(names, sizes, strict=True):
+            flat = flat * size + np.asarray(getattr(columns, name), dtype=np.int64)
+    grid = _Grid(names, sizes, flat, len(columns.score))
+    before = len(found.problems)
+    _check_rows(found, ("final", "inner_scores"), grid, complete=True,
+                design_fields="final.n_inner_folds, configurations and design.metrics")
+    if len(found.problems) > before or design.selected_by != "inner_mean":
+        return
+    scores = np.empty(grid.size)
+    scores[flat] = np.asarray(columns.score, dtype=float)
+    selection = np.ascontiguousarray(scores.reshape(sizes)[..., 0].T)  # (config, inner fold), as the runner's
+    chosen = select_in_fold(selection, _family_members(payload))
+    expected = [config for config in chosen.family if config is not None]
+    rule = _RULE.format(metric=design.selection_metric)
+    if final.family_winners != expected:
+        found.add(("final", "family_winners"), f"final.family_winners: {final.family_winners} (positions in "
+                  f"configurations), but the final.inner_scores choose {expected} {rule}")
+    if final.config != chosen.overall:
+        found.add(("final", "config"), f"final.config: {final.config}, but the final.inner_scores choose "
+                  f"{chosen.overall} {rule}")

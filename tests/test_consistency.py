@@ -121,6 +121,39 @@ def test_a_search_objects_own_winners_are_kept_but_must_exist():
         AssessmentPayload.model_validate({key: value for key, value in doc.items() if key != "overall_winners"})
 
 
+def _final(inner: np.ndarray, **chosen) -> dict:
+    """A final selection over every row whose inner scores are ``inner`` (config, inner fold)."""
+    n_configs, n_inner = inner.shape
+    rows = [(i, c, m) for i in range(n_inner) for c in range(n_configs) for m in range(2)]
+    return {"n_inner_folds": n_inner, "inner_scores": {
+        "inner_fold": [r[0] for r in rows], "config": [r[1] for r in rows], "metric": [r[2] for r in rows],
+        "score": [None if np.isnan(inner[c, i]) else float(inner[c, i]) for i, c, _ in rows],
+        "fit_time": [0.5] * len(rows), "score_time": [0.1] * len(rows)}} | chosen
+
+
+def test_the_final_selections_winners_follow_from_its_scores():
+    """Every row as one fold: fold 1's scores, where config 2 failed once, 1 and 3 tie and "a" comes first."""
+    family_winners, overall_winners = _plain_winners(INNER[1:])
+    family = [config for _, config in family_winners]
+    [(_, overall)] = overall_winners
+    payload = AssessmentPayload.model_validate(_document() | {"final": _final(INNER[1], family_winners=family,
+                                                                              config=overall)})
+    assert (payload.final.family_winners, payload.final.config) == ([1, 3], 1)
+    with pytest.raises(ValidationError) as refused:
+        AssessmentPayload.model_validate(_document() | {"final": _final(INNER[1], family_winners=family, config=3)})
+    [error] = refused.value.errors()
+    assert error["loc"] == ("final", "config")
+    assert "final.config: 3, but the final.inner_scores choose 1" in error["msg"]
+    incomplete = _final(INNER[1], family_winners=family, config=overall)
+    for column in incomplete["inner_scores"].values():
+        del column[4]
+    with pytest.raises(ValidationError) as refused:
+        AssessmentPayload.model_validate(_document() | {"final": incomplete})
+    [error] = refused.value.errors()
+    assert error["loc"] == ("final", "inner_scores")
+    assert "final.inner_scores: no row for inner fold 0, config 2, metric 0" in error["msg"]
+
+
 def test_the_digest_is_one_for_every_encoding_of_the_content(small_assessment):
     payload = small_assessment.payload
     digest = content_digest(payload)
