@@ -32,9 +32,16 @@ class PushRejected(Exception):
 
 
 def save(payload: AssessmentPayload, target: str) -> bool:
-    """Write into the store at ``target`` (a path or SQLAlchemy URL); True when newly stored."""
+    """Write into the store at ``target`` (a path or SQLAlchemy URL); True when newly stored, False when the
+    same assessment (uuid and content) is already there.
+
+    Refused as a push would be: ``ValueError`` (a ``pydantic.ValidationError``) when the payload, changed
+    since it was built, no longer agrees with itself (``foldwise.consistency``); ``UuidConflict`` when
+    the store holds other content under its uuid.
+    """
     from foldwise.store import db_url_from, insert_assessment, make_engine
 
+    payload.recheck()
     engine = make_engine(db_url_from(target))
     try:
         return insert_assessment(engine, payload)

@@ -25,11 +25,13 @@ from pydantic import (
     ConfigDict,
     Field,
     FiniteFloat,
+    PrivateAttr,
     TypeAdapter,
     field_validator,
     model_validator,
 )
 
+from foldwise.consistency import settle
 from foldwise.packed import PACKED, TAIL, Blob, FloatColumn, IntColumn, TailWriter
 
 SCHEMA_VERSION = 2  # 2 added packed score columns; a version 1 document is read as it always was
@@ -55,10 +57,12 @@ def _storable_text(text: str) -> str:
 
 Text = Annotated[str, AfterValidator(_storable_text)]
 Label = bool | int | FiniteFloat | Text
+MetricName = Annotated[str, Field(min_length=1), AfterValidator(_storable_text)]
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+    # strict: a number is a JSON number (false is not 0, "0.8" is not 0.8), a count an integer
+    model_config = ConfigDict(extra="forbid", strict=True)
 
 
 class Family(_Strict):
@@ -92,7 +96,12 @@ class Design(_Strict):
     inner_splitter: str = Field(default="", max_length=2_000)
     grouped: bool = False
     refit_all: bool = Field(default=True, description="every configuration refit on every outer fold")
-    metrics: list[Text] = Field(min_length=1, description="scorer names; the first one selects")
+    metrics: list[MetricName] = Field(min_length=1, description="scorer names, unique; the first one selects")
+    selected_by: Literal["inner_mean", "search"] = Field(
+        default="inner_mean", description="how the fold winners were chosen: 'inner_mean' by foldwise's "
+        "selection rule (greatest inner mean on the first metric, the first in grid order on ties), so the "
+        "server checks them against the inner scores and computes them when left out; 'search' by a search "
+        "object's own rule (successive halving, a callable refit), taken as sent")
     classes: list[Label] | None = None
 
     @property
@@ -108,6 +117,18 @@ class OuterFold(_Strict):
     y_true: list[Label] | None = Field(default=None, description="true targets of the test rows")
 
 
+_FLOAT_COLUMNS = ("score", "fit_time", "score_time")
+
+
+class _ArrayCache(dict):
+    """Columns as arrays, kept beside the fields: not part of the value, so equal payloads stay equal."""
+
+    def __eq__(self, other) -> bool:
+        return isinstance(other, _ArrayCache)
+
+    __hash__ = None
+
+
 class _ScoreColumns(_Strict):
     repeat: IntColumn
     outer_fold: IntColumn
@@ -117,18 +138,32 @@ class _ScoreColumns(_Strict):
     fit_time: FloatColumn
     score_time: FloatColumn
 
+    _arrays: _ArrayCache = PrivateAttr(default_factory=lambda: _ArrayCache())
+
     def __len__(self) -> int:
         return len(self.score)
+
+    def array(self, name: str) -> np.ndarray:
+        """The column as numpy numbers, made once and shared by the checks, the digest and the store: int64
+        (Python integers where one is too large for int64), or float64 with NaN for null. Read-only, as
+        the payload is once validated."""
+        values = getattr(self, name)
+        held, made = self._arrays.get(name, (None, None))
+        if held is not values:  # made from another list (a model_copy with an update), or not yet
+            made = np.array(values, dtype=float) if name in _FLOAT_COLUMNS else _int_array(values)
+            made.flags.writeable = False
+            self._arrays[name] = (values, made)
+        return made
 
     @model_validator(mode="after")
     def _same_lengths(self):
         lengths = {name: len(getattr(self, name)) for name in type(self).model_fields}
         if len(set(lengths.values())) > 1:
             raise ValueError(f"columns differ in length: {lengths}")
-        for name in ("score", "fit_time", "score_time"):
+        for name in _FLOAT_COLUMNS:
             values = getattr(self, name)
             # None becomes NaN here, so only the few non-finite positions need a second look
-            for position in np.flatnonzero(~np.isfinite(np.array(values, dtype=float))):
+            for position in np.flatnonzero(~np.isfinite(self.array(name))):
                 if values[position] is not None:
                     raise ValueError(f"{name}[{position}] is {values[position]}; use null for a failed fit")
         return self
@@ -226,18 +261,23 @@ class AssessmentPayload(_Strict):
     """A complete nested cross-validation, as pushed to `POST /api/assessments`."""
 
     schema_version: Literal[1, 2] = SCHEMA_VERSION
-    uuid: UUID = Field(default_factory=uuid4)
+    uuid: UUID = Field(default_factory=uuid4, strict=False, description="the assessment's identity: pushing "
+                       "it again with the same content is answered 200, with other content 409")
     name: Text = Field(min_length=1, max_length=200)
     dataset: Text | None = Field(default=None, max_length=200)
-    created_at: datetime = Field(default_factory=lambda: datetime.now(UTC))
+    created_at: datetime = Field(default_factory=lambda: datetime.now(UTC), strict=False)
     design: Design
     families: list[Family] = Field(min_length=1)
     configurations: list[Configuration] = Field(min_length=1)
     outer_folds: list[OuterFold] = Field(min_length=1)
     inner_scores: InnerScores
     outer_scores: OuterScores
-    family_winners: list[FoldChoice]
-    overall_winners: list[FoldChoice]
+    family_winners: list[FoldChoice] | None = Field(
+        default=None, description="each family's winner per outer fold; left out (or null), computed from the "
+        "inner scores by the selection rule; sent, it must be the one the rule chooses (see design.selected_by)")
+    overall_winners: list[FoldChoice] | None = Field(
+        default=None, description="the winner per outer fold, none where every configuration failed; left out "
+        "(or null), computed from the inner scores like family_winners")
     predictions: list[Prediction] = Field(default_factory=list)
     failures: list[Failure] = Field(default_factory=list)
     models: list[FittedModel] = Field(default_factory=list, description="fitted family winners, if kept")
@@ -261,7 +301,17 @@ class AssessmentPayload(_Strict):
     @model_validator(mode="after")
     def _consistent(self):
         _check_consistency(self)
+        settle(self)  # the rules of an assessment that agrees with itself; fills in winners left out
         return self
+
+    def recheck(self) -> None:
+        """Run the consistency checks again on the fields as they are now, for a payload changed since it was
+        validated (``save`` does, before storing): the same refusals as a push would get."""
+        for block in (self.inner_scores, self.outer_scores):
+            block._arrays.clear()
+            block._same_lengths()
+        _check_consistency(self)
+        settle(self)
 
     def fingerprint(self) -> str:
         return outer_fingerprint(self.design.n_samples, self.outer_folds)
@@ -343,7 +393,7 @@ def _check_consistency(payload: AssessmentPayload) -> None:
         _check_columns(name, getattr(payload, name), folds, n_configs, n_metrics, design.n_inner_folds)
 
     for name in ("family_winners", "overall_winners"):
-        for position, choice in enumerate(getattr(payload, name)):
+        for position, choice in enumerate(getattr(payload, name) or []):
             _check_reference(f"{name}[{position}]", choice, folds, n_configs)
 
     for position, prediction in enumerate(payload.predictions):
@@ -446,11 +496,11 @@ def _check_text(where: str, text: str) -> None:
 def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) -> None:
     """Every row's references in range; numpy finds the first row that is not, for the message."""
     for field, target, limit in (("config", "configurations", n_configs), ("metric", "design.metrics", n_metrics)):
-        values = _int_array(getattr(columns, field))
+        values = columns.array(field)
         if len(outside := np.flatnonzero((values < 0) | (values >= limit))):
             raise ValueError(f"{name}.{field}[{outside[0]}]: {values[outside[0]]} is not a position in {target} "
                              f"(0..{limit - 1})")
-    repeats, outer_folds = _int_array(columns.repeat), _int_array(columns.outer_fold)
+    repeats, outer_folds = columns.array("repeat"), columns.array("outer_fold")
     # (repeat, outer fold) as one number: folds' repeats stay below MAX_COUNT, so it fits int64
     width = 1 + max(o for _, o in folds)
     fold_keys = np.array([r * width + o for r, o in folds], dtype=np.int64)
@@ -461,7 +511,7 @@ def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) ->
         raise ValueError(f"{name}.outer_fold[{unknown[0]}]: repeat {repeats[unknown[0]]}, outer fold "
                          f"{outer_folds[unknown[0]]} is not in outer_folds")
     if isinstance(columns, InnerScores):
-        values = _int_array(columns.inner_fold)
+        values = columns.array("inner_fold")
         if len(outside := np.flatnonzero((values < 0) | (values >= n_inner_folds))):
             raise ValueError(f"inner_scores.inner_fold[{outside[0]}]: {values[outside[0]]} is out of range of "
                              f"design.n_inner_folds (0..{n_inner_folds - 1})")

@@ -18,10 +18,12 @@ COLUMNS = {"inner_scores": ["repeat", "outer_fold", "inner_fold", "config", "met
 
 
 def _with_failed_fit(payload: AssessmentPayload) -> AssessmentPayload:
-    """The payload with inner score 4 and outer fit time 2 null, as a failed fit leaves them."""
+    """The payload with inner score 4 and outer fit time 2 null, as a failed fit leaves them, and its fold
+    winners left out, so that they are chosen again from the inner scores."""
     fields = payload.model_dump()
     fields["inner_scores"]["score"][4] = None
     fields["outer_scores"]["fit_time"][2] = None
+    fields["family_winners"] = fields["overall_winners"] = None
     return AssessmentPayload.model_validate(fields)
 
 

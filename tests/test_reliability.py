@@ -181,11 +181,11 @@ def _copies(base: AssessmentPayload, label: str, count: int, **update) -> list[A
 
 
 def _inflated(base: AssessmentPayload, *, copies: int) -> list[Prediction]:
-    """The real outer-test predictions, then ``copies`` more of each with its columns twice over: a large
-    payload whose rows still fit the folds."""
-    wide = [Prediction.from_array(np.tile(p.array(), (1, 2)), repeat=p.repeat, outer_fold=p.outer_fold,
+    """The real outer-test predictions with their columns repeated, as large as the real ones followed by
+    ``copies`` more of each twice as wide: a large payload whose rows still fit the folds, and still one
+    block per fold and configuration."""
+    return [Prediction.from_array(np.tile(p.array(), (1, 1 + 2 * copies)), repeat=p.repeat, outer_fold=p.outer_fold,
                                   config=p.config, kind=p.kind) for p in base.predictions]
-    return list(base.predictions) + wide * copies
 
 
 def _write(payloads: list[AssessmentPayload], folder: Path) -> list[Path]:

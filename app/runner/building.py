@@ -32,7 +32,8 @@ _RECORDED_PACKAGES = ("foldwise", "scikit-learn", "numpy", "scipy", "pandas", "j
 
 
 def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, classes, classifier,
-                  results: dict[tuple, FitResult], choices, refit_all, n_features, grouped) -> AssessmentPayload:
+                  results: dict[tuple, FitResult], choices, refit_all, n_features, grouped,
+                  selected_by: str = "inner_mean") -> AssessmentPayload:
     splits, targets = layout.splits, np.asarray(y)
     inner, outer = _columns(metrics, True), _columns(metrics, False)
     predictions, failures, models = [], [], []
@@ -67,7 +68,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             n_features=n_features, n_repeats=layout.n_repeats, n_outer_folds=layout.n_outer_folds,
             n_inner_folds=layout.n_inner_folds, outer_splitter=layout.outer_splitter,
             inner_splitter=layout.inner_splitter, grouped=grouped, refit_all=refit_all, metrics=metrics,
-            classes=classes),
+            classes=classes, selected_by=selected_by),
         families=[Family(name=family, estimator=repr(estimator),
                          estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}",
                          estimator_skops=_skops_text(estimator, f"family {family!r}'s estimator"))

@@ -6,7 +6,7 @@
         for i, ... in my_inner_splits:
             rec.inner(r, o, i, family="cnn", params={"lr": 1e-3}, scores={"roc_auc": 0.91}, fit_time=12.5)
         rec.outer(r, o, family="cnn", params={"lr": 1e-3}, scores={"roc_auc": 0.89}, predictions=proba)
-    assessment = rec.finish()   # picks the fold winners by the runner's rule; then .save() or .push()
+    assessment = rec.finish()   # fold winners by the selection rule; then .save() or .push()
 """
 
 from __future__ import annotations
@@ -17,14 +17,12 @@ from typing import Any
 import numpy as np
 
 from foldwise.assessment import Assessment
-from foldwise.definitions import select_in_fold
 from foldwise.payload import (
     AssessmentPayload,
     Configuration,
     Design,
     Failure,
     Family,
-    FoldChoice,
     InnerScores,
     OuterFold,
     OuterScores,
@@ -51,14 +49,16 @@ class Recorder:
     def outer_fold(self, repeat: int, outer_fold: int, *, n_train: int, test, y_true=None) -> None:
         test = np.asarray(test).tolist()
         labels = None if y_true is None else np.asarray(y_true).tolist()
-        self._folds[(repeat, outer_fold)] = OuterFold(repeat=repeat, outer_fold=outer_fold, n_train=n_train,
+        repeat, outer_fold = int(repeat), int(outer_fold)  # numpy integers too: the payload takes plain ones
+        self._folds[(repeat, outer_fold)] = OuterFold(repeat=repeat, outer_fold=outer_fold, n_train=int(n_train),
                                                       test_indices=test, y_true=labels)
 
     def inner(self, repeat: int, outer_fold: int, inner_fold: int, *, family: str, params: dict[str, Any],
               scores: dict[str, float | None], fit_time: float | None = None, score_time: float | None = None,
               error: str | None = None) -> None:
         c = self._config(family, params)
-        self._inner[(repeat, outer_fold, inner_fold, c)] = (self._scores(scores), fit_time, score_time)
+        repeat, outer_fold, inner_fold = int(repeat), int(outer_fold), int(inner_fold)
+        self._inner[(repeat, outer_fold, inner_fold, c)] = (self._scores(scores), _time(fit_time), _time(score_time))
         if error:
             self._failures.append(Failure(level="inner", repeat=repeat, outer_fold=outer_fold,
                                           inner_fold=inner_fold, config=c, message=error))
@@ -67,7 +67,8 @@ class Recorder:
               scores: dict[str, float | None], fit_time: float | None = None, score_time: float | None = None,
               predictions=None, error: str | None = None) -> None:
         c = self._config(family, params)
-        self._outer[(repeat, outer_fold, c)] = (self._scores(scores), fit_time, score_time)
+        repeat, outer_fold = int(repeat), int(outer_fold)
+        self._outer[(repeat, outer_fold, c)] = (self._scores(scores), _time(fit_time), _time(score_time))
         if predictions is not None:
             self._predictions.append(Prediction.from_array(predictions, repeat=repeat, outer_fold=outer_fold,
                                                            config=c, kind=self.prediction_kind))
@@ -76,42 +77,25 @@ class Recorder:
                                           message=error))
 
     def finish(self) -> Assessment:
-        """Pick the fold winners from the recorded inner scores and build the assessment."""
+        """Build the assessment; its fold winners are computed from the recorded inner scores by the selection
+        rule (``foldwise.definitions.select_in_fold``), as the payload does for any push that leaves them out."""
         if not self._folds or not self._inner:
             raise ValueError(f"nothing to finish: {len(self._folds)} outer folds and {len(self._inner)} inner "
                              f"scores recorded; call outer_fold(...) and inner(...) first")
         configs = list(self._configs.values())
-        families = list(dict.fromkeys(config.family for config in configs))
-        members = [[i for i, config in enumerate(configs) if config.family == family] for family in families]
-        n_inner = 1 + max(key[2] for key in self._inner) if self._inner else 0
-        metric = 0  # the first metric selects
-        family_winners, overall_winners = [], []
-        for repeat, outer_fold in sorted(self._folds):
-            table = np.full((len(configs), n_inner), np.nan)
-            for (r, o, i, c), (scores, _, _) in self._inner.items():
-                if (r, o) == (repeat, outer_fold) and scores[metric] is not None:
-                    table[c, i] = scores[metric]
-            chosen = select_in_fold(table, members)
-            winners, overall = chosen.family, chosen.overall
-            if overall is None:
-                raise ValueError(f"no configuration has a complete set of inner scores in repeat {repeat}, "
-                                 f"outer fold {outer_fold}")
-            family_winners += [FoldChoice(repeat=repeat, outer_fold=outer_fold, config=c)
-                               for c in winners if c is not None]
-            overall_winners.append(FoldChoice(repeat=repeat, outer_fold=outer_fold, config=overall))
+        n_inner = 1 + max(key[2] for key in self._inner)
         design = Design(task=self.task, n_samples=self.n_samples, n_repeats=1 + max(r for r, _ in self._folds),
-                        n_outer_folds=1 + max(o for _, o in self._folds), n_inner_folds=max(n_inner, 1),
+                        n_outer_folds=1 + max(o for _, o in self._folds), n_inner_folds=n_inner,
                         outer_splitter="recorded by hand", inner_splitter="recorded by hand",
                         refit_all=len(self._outer) == len(self._folds) * len(configs), metrics=self.metrics,
                         classes=self.classes)
         return Assessment(AssessmentPayload(
             name=self.name, dataset=self.dataset, design=design,
-            families=[Family(name=family) for family in families], configurations=configs,
-            outer_folds=[self._folds[key] for key in sorted(self._folds)],
+            families=[Family(name=family) for family in dict.fromkeys(config.family for config in configs)],
+            configurations=configs, outer_folds=[self._folds[key] for key in sorted(self._folds)],
             inner_scores=InnerScores(**_columns(self._inner, inner=True)),
             outer_scores=OuterScores(**_columns(self._outer, inner=False)),
-            family_winners=family_winners, overall_winners=overall_winners, predictions=self._predictions,
-            failures=self._failures, versions=package_versions(),
+            predictions=self._predictions, failures=self._failures, versions=package_versions(),
             total_fit_time=float(sum(entry[1] or 0.0 for entry in [*self._inner.values(), *self._outer.values()]))))
 
     def _config(self, family: str, params: dict[str, Any]) -> int:
@@ -126,6 +110,10 @@ class Recorder:
             raise ValueError(f"scores for metrics {unknown} that the recorder was not told of {self.metrics}")
         values = [scores.get(metric) for metric in self.metrics]
         return [None if value is None or not math.isfinite(value) else float(value) for value in values]
+
+
+def _time(seconds: float | None) -> float | None:
+    return None if seconds is None else float(seconds)
 
 
 def _columns(entries: dict, *, inner: bool) -> dict[str, list]:

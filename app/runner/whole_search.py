@@ -76,7 +76,7 @@ def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progres
         metrics=metrics, classes=classes, classifier=classifier, results=_complete(results, layout, space,
                                                                                    metrics),
         choices=choices, refit_all=False, n_features=getattr(X, "shape", (0, None))[1],
-        grouped=groups is not None))
+        grouped=groups is not None, selected_by="search"))  # the search's own rule chose the winners
 
 
 def _complete(results, layout, space, metrics) -> dict:

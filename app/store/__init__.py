@@ -34,11 +34,12 @@ from foldwise.store.restore import (
     outer_folds_for,
     predictions_for,
 )
-from foldwise.store.writes import delete_assessment, insert_assessment
+from foldwise.store.writes import UuidConflict, delete_assessment, insert_assessment
 
 __all__ = [
     "AssessmentNotFound",
     "AssessmentRecord",
+    "UuidConflict",
     "EnsembleRecord",
     "StoredModel",
     "StoredPrediction",

@@ -9,36 +9,54 @@ from datetime import UTC
 from itertools import islice, repeat
 
 import numpy as np
-from sqlalchemy import Connection, Double, Engine, Integer, LargeBinary, String, Table, delete, insert, select
+from pydantic import ValidationError
+from sqlalchemy import Connection, Double, Engine, Integer, LargeBinary, String, Table, delete, insert, select, update
 from sqlalchemy.exc import IntegrityError
 
 from foldwise.definitions import NestedEstimate, nested_estimate
+from foldwise.identity import content_digest
 from foldwise.payload import AssessmentPayload
 from foldwise.store import tables
 from foldwise.store.engine import write_transaction
 from foldwise.store.lookup import uuid_text
+from foldwise.store.restore import load_payload
 from foldwise.store.summaries import inner_summary_columns
 
 _CHUNK = 20_000  # rows per executemany: bounded memory for an assessment of any size
 
 
-def insert_assessment(engine: Engine, payload: AssessmentPayload, *, defer_checkpoint: bool = False) -> bool:
-    """Store ``payload``; True when newly stored, False when its uuid is already in the store.
+class UuidConflict(ValueError):
+    """The store holds another assessment under the payload's uuid: a uuid names one assessment."""
 
-    All rows go in one transaction, so no reader ever sees half an assessment. The assessment row
-    goes first: the uuid's unique constraint then settles a race between two writers of one
-    assessment (the second waits for the first and finds the uuid taken), on any backend. With
-    ``defer_checkpoint``, see ``write_transaction``: the caller runs ``checkpoint`` afterwards.
+    def __init__(self, uuid: str, reason: str):
+        super().__init__(f"assessment {uuid} is already stored with different content ({reason}); a uuid names "
+                         "one assessment: push the new one under a new uuid, or delete the stored one first")
+        self.uuid, self.reason = uuid, reason
+
+
+def insert_assessment(engine: Engine, payload: AssessmentPayload, *, defer_checkpoint: bool = False) -> bool:
+    """Store ``payload``; True when newly stored, False when the same assessment is already stored.
+
+    The same assessment is the same uuid with the same content (``foldwise.identity.content_digest``);
+    the same uuid with other content raises ``UuidConflict``. All rows go in one transaction, so no
+    reader ever sees half an assessment. The assessment row goes first: the uuid's unique constraint
+    then settles a race between two writers of one assessment (the second waits for the first and finds
+    the uuid taken), on any backend. With ``defer_checkpoint``, see ``write_transaction``: the caller
+    runs ``checkpoint`` afterwards.
     """
+    digest = content_digest(payload)
     try:
         with write_transaction(engine, defer_checkpoint=defer_checkpoint, own_references=True) as connection:
-            assessment_id = connection.execute(
-                insert(tables.assessments).values(**_assessment_row(payload))).inserted_primary_key[0]
+            assessment_id = connection.execute(insert(tables.assessments).values(
+                **_assessment_row(payload), content_digest=digest)).inserted_primary_key[0]
             _insert_children(connection, assessment_id, payload)
     except IntegrityError:
-        if _is_stored(engine, str(payload.uuid)):
-            return False
-        raise
+        stored = _stored_digest(engine, str(payload.uuid))
+        if stored is None:
+            raise
+        if stored != digest:
+            raise UuidConflict(str(payload.uuid), "its content digest differs") from None
+        return False
     return True
 
 
@@ -50,10 +68,27 @@ def delete_assessment(engine: Engine, uuid: str) -> bool:
     return result.rowcount > 0
 
 
-def _is_stored(engine: Engine, uuid: str) -> bool:
-    query = select(tables.assessments.c.id).where(tables.assessments.c.uuid == uuid)
+def _stored_digest(engine: Engine, uuid: str) -> str | None:
+    """The content digest of the assessment stored under ``uuid``; None when there is none.
+
+    An assessment stored before digests were kept (migration 0005) gets its digest now, from its rows
+    read back as a payload, and keeps it; one that today's consistency rules refuse cannot be compared,
+    and counts as different (``UuidConflict`` says so).
+    """
+    a = tables.assessments
     with engine.connect() as connection:
-        return connection.scalar(query) is not None
+        row = connection.execute(select(a.c.id, a.c.content_digest).where(a.c.uuid == uuid)).first()
+    if row is None or row.content_digest is not None:
+        return None if row is None else row.content_digest
+    try:
+        digest = content_digest(load_payload(engine, uuid))
+    except ValidationError:
+        raise UuidConflict(uuid, "it was stored before content digests were kept, and today's consistency "
+                           "rules refuse it, so the two cannot be compared") from None
+    with write_transaction(engine) as connection:
+        connection.execute(update(a).where(a.c.id == row.id, a.c.content_digest.is_(None))
+                           .values(content_digest=digest))
+    return digest
 
 
 def _assessment_row(payload: AssessmentPayload) -> dict:

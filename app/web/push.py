@@ -17,7 +17,7 @@ from fastapi.routing import APIRoute
 from pydantic import ValidationError
 
 from foldwise.payload import AssessmentPayload
-from foldwise.store import checkpoint, insert_assessment
+from foldwise.store import UuidConflict, checkpoint, insert_assessment
 from foldwise.wire import CONTENT_TYPE, PackedBodyError, read_packed_body
 
 OPENAPI = {"requestBody": {"content": {CONTENT_TYPE: {
@@ -74,7 +74,11 @@ def stored(request: Request, payload: AssessmentPayload, background: BackgroundT
     """Store ``payload`` and answer once it is committed; copying SQLite's write-ahead log into the
     database file follows the answer, so the client does not wait for a second write of every page."""
     engine = request.app.state.engine
-    created = insert_assessment(engine, payload, defer_checkpoint=True)
+    try:
+        created = insert_assessment(engine, payload, defer_checkpoint=True)
+    except UuidConflict as conflict:  # a uuid names one assessment: other content under it is refused
+        return JSONResponse({"detail": [{"loc": ["body", "uuid"], "msg": str(conflict), "type": "uuid_conflict"}]},
+                            status_code=409)
     background.add_task(checkpoint, engine)
     body = {"uuid": str(payload.uuid), "created": created,
             "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}

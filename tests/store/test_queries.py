@@ -102,15 +102,22 @@ def test_the_nested_estimate_is_mean_and_sample_sd_of_the_winners_outer_scores(e
     assert (listed["estimate_n_used"], listed["estimate_n_folds"]) == (6, 6)
 
 
-def test_one_winner_gives_a_mean_and_a_nan_sd(engine, make_payload):
-    whole = make_payload()
-    payload = AssessmentPayload.model_validate(whole.model_dump()
-                                               | {"overall_winners": whole.overall_winners[:1]})
+def test_a_fold_where_every_configuration_failed_has_no_winner_and_counts_as_failed(engine, make_payload):
+    fields = make_payload().model_dump() | {"family_winners": None, "overall_winners": None}
+    inner = fields["inner_scores"]
+    for row, key in enumerate(zip(inner["repeat"], inner["outer_fold"], inner["metric"], strict=True)):
+        if key == (1, 0, 0):  # every configuration's selection-metric scores in repeat 1, outer fold 0
+            inner["score"][row] = None
+    payload = AssessmentPayload.model_validate(fields)  # the winners computed from the inner scores
+    assert [(c.repeat, c.outer_fold) for c in payload.overall_winners] == [(0, 0), (0, 1), (0, 2), (1, 1), (1, 2)]
+    assert not [c for c in payload.family_winners if (c.repeat, c.outer_fold) == (1, 0)]
     insert_assessment(engine, payload)
     record = get_assessment(engine, payload.uuid)
-    assert record.estimate.mean == _winner_outer_scores(payload)[0]
-    assert np.isnan(record.estimate.sd)
-    assert record.estimate.described == "over 1 of 6 outer folds (5 failed)"
+    scores = _winner_outer_scores(payload)  # five folds with a winner; one of their outer refits failed
+    used = [score for score in scores if score is not None]
+    assert record.estimate.mean == pytest.approx(np.mean(used), rel=1e-12)
+    assert (record.estimate.n_used, record.estimate.n_folds) == (len(used), 6)
+    assert record.estimate.described == f"over {len(used)} of 6 outer folds ({6 - len(used)} failed)"
 
 
 def test_the_record_holds_the_payload_description_and_counts(engine, stored):
