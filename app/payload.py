@@ -92,7 +92,10 @@ class Design(_Strict):
     inner_splitter: str = Field(default="", max_length=2_000)
     grouped: bool = False
     refit_all: bool = Field(default=True, description="every configuration refit on every outer fold")
-    metrics: list[Text] = Field(min_length=1, description="scorer names; the first one selects")
+    metrics: list[Text] = Field(min_length=1, description="metric names (scikit-learn "
+                                "scorer names, or the user's names of custom scorers); the first one selects")
+    scorers: dict[Text, Text] = Field(default_factory=dict, description="metric -> what it scored, for a "
+                                      "metric whose name is not a scikit-learn scorer name (make_scorer(...))")
     classes: list[Label] | None = None
 
     @property
@@ -214,11 +217,18 @@ class FinalSelection(_Strict):
 
 
 class Failure(_Strict):
+    """A failed fit, or the part of a fit that failed: one metric's scoring, or its outer predictions."""
+
     level: Literal["inner", "outer"]
     repeat: int = Field(ge=0)
     outer_fold: int = Field(ge=0)
     inner_fold: int | None = Field(default=None, ge=0)
     config: int = Field(ge=0)
+    metric: int | None = Field(default=None, ge=0, description="position in `design.metrics` of the one "
+                               "metric whose scoring failed; null when the whole fit failed")
+    stage: Literal["fit", "score", "predict"] | None = Field(
+        default=None, description="what failed: the fit (every metric NaN), one metric's scoring, or the "
+                                  "outer-test predictions; null in assessments recorded before stages were kept")
     message: Text = Field(max_length=20_000)
 
 
@@ -315,6 +325,9 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     _refuse_duplicates("families", family_names)
     _refuse_duplicates("configurations", [config.id for config in payload.configurations])
     _refuse_duplicates("design.metrics", design.metrics)
+    strangers = sorted(set(design.scorers) - set(design.metrics))
+    if strangers:
+        raise ValueError(f"design.scorers: describes {strangers}, which design.metrics does not name")
     for position, config in enumerate(payload.configurations):
         if config.family not in family_names:
             raise ValueError(f"configurations[{position}].family: {config.family!r} is not in families")
@@ -361,6 +374,12 @@ def _check_consistency(payload: AssessmentPayload) -> None:
         if failure.inner_fold is not None and failure.inner_fold >= design.n_inner_folds:
             raise ValueError(f"failures[{position}].inner_fold: {failure.inner_fold} is out of range of "
                              f"design.n_inner_folds (0..{design.n_inner_folds - 1})")
+        if failure.metric is not None and failure.metric >= n_metrics:
+            raise ValueError(f"failures[{position}].metric: {failure.metric} is not a position in design.metrics "
+                             f"(0..{n_metrics - 1})")
+        if failure.metric is not None and failure.stage not in (None, "score"):
+            raise ValueError(f"failures[{position}].metric: a {failure.stage!r} failure fails every metric, so "
+                             f"metric must be null; give stage 'score' for one metric's failure")
 
     for position, family in enumerate(payload.families):
         if family.estimator_skops is not None:
