@@ -8,13 +8,12 @@ from collections import Counter
 from collections.abc import Iterable
 
 import joblib
-
 import numpy as np
 from sklearn.base import is_classifier
 from sklearn.model_selection import GridSearchCV, RandomizedSearchCV, check_cv
 from sklearn.model_selection._search import BaseSearchCV
-from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.metadata_routing import _routing_enabled
+from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.validation import _num_samples
 
 from foldwise.assessment import Assessment
