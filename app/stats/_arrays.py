@@ -69,6 +69,8 @@ def mean_fold_size(size, name: str, keep: np.ndarray, *, unit: str = "outer fold
                          f"({keep.size}); got an array of shape {values.shape}")
     if not (np.all(np.isfinite(values)) and np.all(values > 0)):
         raise ValueError(f"{name} must hold finite, positive fold sizes; got {values[:5].tolist()}")
+    if values.size != 1 and not keep.any():  # no fold used (every fold failed): no mean size either
+        return float("nan")
     return float(values[0] if values.size == 1 else np.mean(values[keep]))
 
 

@@ -10,6 +10,7 @@ import warnings
 from contextlib import contextmanager
 
 import numpy as np
+import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 from sklearn.base import BaseEstimator, ClassifierMixin, clone
@@ -19,6 +20,7 @@ from sklearn.tree import DecisionTreeClassifier
 
 from foldwise import nested_cv
 from foldwise.payload import AssessmentPayload
+from foldwise.runner.journal import JournalMismatch
 from foldwise.store import db_url_from, failures_for, get_assessment, insert_assessment, load_payload, make_engine
 
 
@@ -219,3 +221,18 @@ def test_the_end_of_run_warning_counts_failures_by_message(string_labels):
     assert message.startswith("4 of 24 fits failed and were recorded with NaN scores; 20 more fits lost a metric")
     assert "20 × ValueError: pos_label=1 is not a valid label" in message
     assert "4 × ValueError: no rows of site 0 to calibrate on" in message
+
+
+def test_a_journal_keeps_what_each_fit_lost_and_refuses_a_run_with_other_weights(string_labels, tmp_path):
+    X, y = string_labels
+    space = {"tree": (NoProbabilities(), {"max_depth": [1, 2]})}
+    path = tmp_path / "journal.sqlite"
+    options = {"outer": 3, "inner": 3, "scoring": ["accuracy", "f1"], "progress": False, "checkpoint": path}
+    with pytest.warns(RuntimeWarning, match="fits lost a metric or their predictions"):
+        first = nested_cv(space, X, y, **options)
+    with pytest.warns(RuntimeWarning, match="fits lost a metric or their predictions"):
+        resumed = nested_cv(space, X, y, **options)  # every fit read back from the journal
+    pd.testing.assert_frame_equal(resumed.failures, first.failures)
+    pd.testing.assert_frame_equal(resumed.outer_scores, first.outer_scores)
+    with pytest.raises(JournalMismatch, match="its options differs"):
+        nested_cv(space, X, y, params={"sample_weight": np.ones(len(y))}, **options)
