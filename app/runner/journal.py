@@ -186,9 +186,9 @@ def _refuse_other_runs(path: Path, stored: dict[str, str], mine: Fingerprint) ->
 
 
 _WHAT_CHANGED_MEANS = ("data: X, y or groups; grid: the families' estimators or configurations; scorer: the "
-                       "metrics or the classes; splits: the outer or inner folds; versions: Python or a package; "
-                       "options: refit_all, keep_predictions, keep_models, grow, share_prefixes, the scorers, "
-                       "params, error_score or metadata routing")
+                       "metrics, what each scored, or the classes; splits: the outer or inner folds; versions: "
+                       "Python or a package; options: refit_all, keep_predictions, keep_models, grow, "
+                       "share_prefixes, params, error_score or metadata routing")
 
 
 def _is_journal(path: Path) -> bool:

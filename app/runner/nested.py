@@ -134,10 +134,10 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
     chains = growth_chains(resolved, n_samples=_num_samples(X)) if grow else \
         [[c] for c in range(len(resolved.candidates))]
     journal = None if checkpoint is None else Journal(checkpoint, fingerprint(
-        X=X, y=y, groups=groups, space=resolved, layout=layout, metrics=metrics, classes=classes,
+        X=X, y=y, groups=groups, space=resolved, layout=layout, classes=classes,
+        metrics=[f"{name} = {scorers.custom[name]}" if name in scorers.custom else name for name in metrics],
         options={"refit_all": refit_all, "keep_predictions": keep_predictions, "keep_models": keep_models,
                  "grow": grow, "share_prefixes": share_prefixes, "final": final,
-                 "scorers": {name: scorers.custom.get(name, name) for name in metrics},
                  "error_score": str(error_score), "routing": _routing_enabled(),
                  "params": None if not params else joblib.hash(params, hash_name="sha1")}), mode=checkpoint_mode)
     shared = shared_steps(resolved) if share_prefixes else {}
