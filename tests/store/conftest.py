@@ -80,11 +80,10 @@ def build_payload(*, name: str = "logistic vs tree", dataset: str | None = "inve
             values[-1, 1] = 5e-324 if config == 1 else values[-1, 1]
             predictions.append(Prediction.from_array(values, repeat=fold.repeat, outer_fold=fold.outer_fold,
                                                      config=config, kind="proba"))
-    # The inner failure has no stage, as recorded before stages were kept; the outer one has one.
     failures = [Failure(level="inner", repeat=INNER_FAILURE[0], outer_fold=INNER_FAILURE[1],
                         inner_fold=INNER_FAILURE[2], config=INNER_FAILURE[3], message="ValueError: singular"),
                 Failure(level="outer", repeat=OUTER_FAILURE[0], outer_fold=OUTER_FAILURE[1],
-                        config=OUTER_FAILURE[2], stage="fit", message="MemoryError")]
+                        config=OUTER_FAILURE[2], message="MemoryError")]
     return AssessmentPayload(
         uuid=uuid4(), name=name, dataset=dataset,
         created_at=created_at or datetime(2024, 5, 6, 7, 8, 9, 123456, tzinfo=timezone(timedelta(hours=2))),
