@@ -26,8 +26,8 @@ class FinalChoice:
 class Assessment:
     """One nested cross-validation with every inner and outer score.
 
-    Tables (pandas DataFrames): ``inner_scores``, ``outer_scores``, ``winners`` (overall fold winners)
-    and ``family_winners``; ``summary()`` per family; ``save(...)`` into a store, ``push(...)`` to a
+    Tables (pandas DataFrames): ``inner_scores``, ``outer_scores``, ``winners`` (overall fold winners),
+    ``family_winners`` and ``failures``; ``summary()`` per family; ``save(...)`` into a store, ``push(...)`` to a
     server.
     """
 
@@ -60,6 +60,12 @@ class Assessment:
     @cached_property
     def outer_scores(self) -> pd.DataFrame:
         return frames.outer_frame(self.payload)
+
+    @cached_property
+    def failures(self) -> pd.DataFrame:
+        """Every failed fit, or failed part of a fit (one metric's scoring, the outer predictions), with
+        its stage and message (``frames.failures_frame``)."""
+        return frames.failures_frame(self.payload)
 
     @cached_property
     def winners(self) -> pd.DataFrame:

@@ -13,6 +13,8 @@ INNER_COLUMNS = ["repeat", "outer_fold", "inner_fold", "family", "config", "para
 OUTER_COLUMNS = ["repeat", "outer_fold", "family", "config", "params", "metric", "score", "fit_time",
                  "score_time", "n_train", "n_test", "family_winner", "overall_winner"]
 FINAL_COLUMNS = ["inner_fold", "family", "config", "params", "metric", "score", "fit_time", "score_time"]
+FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "params", "metric", "stage",
+                   "message"]
 WINNER_COLUMNS = ["repeat", "outer_fold", "family", "config", "params", "inner_mean", "inner_std",
                   "outer_score", "optimism"]
 
@@ -59,6 +61,21 @@ def outer_frame(payload: AssessmentPayload) -> pd.DataFrame:
     frame["family_winner"] = [key in family for key in keys]
     frame["overall_winner"] = [key in overall for key in keys]
     return frame[OUTER_COLUMNS]
+
+
+def failures_frame(payload: AssessmentPayload) -> pd.DataFrame:
+    """One row per failed fit, or failed part of a fit, in payload order.
+
+    ``inner_fold`` is a nullable Int64, missing for an outer refit; ``metric`` names the one metric whose
+    scoring failed (None when the whole fit failed, or only its predictions); ``stage`` is "fit",
+    "score" or "predict" (None in assessments recorded before stages were kept).
+    """
+    configs, metrics = payload.configurations, payload.design.metrics
+    rows = [(f.level, f.repeat, f.outer_fold, f.inner_fold, configs[f.config].family, configs[f.config].id,
+             configs[f.config].params, None if f.metric is None else metrics[f.metric], f.stage, f.message)
+            for f in payload.failures]
+    frame = pd.DataFrame(rows, columns=FAILURE_COLUMNS)
+    return frame.astype({"repeat": "int64", "outer_fold": "int64", "inner_fold": "Int64"})
 
 
 def winners_frame(inner: pd.DataFrame, outer: pd.DataFrame, metric: str, *, flag: str = "overall_winner"

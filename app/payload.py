@@ -102,6 +102,8 @@ class Design(_Strict):
         "selection rule (greatest inner mean on the first metric, the first in grid order on ties), so the "
         "server checks them against the inner scores and computes them when left out; 'search' by a search "
         "object's own rule (successive halving, a callable refit), taken as sent")
+    scorers: dict[Text, Text] = Field(default_factory=dict, description="metric -> what it scored, for a "
+                                      "metric whose name is not a scikit-learn scorer name (make_scorer(...))")
     classes: list[Label] | None = None
 
     @property
@@ -249,11 +251,18 @@ class FinalSelection(_Strict):
 
 
 class Failure(_Strict):
+    """A failed fit, or the part of a fit that failed: one metric's scoring, or its outer predictions."""
+
     level: Literal["inner", "outer"]
     repeat: int = Field(ge=0)
     outer_fold: int = Field(ge=0)
     inner_fold: int | None = Field(default=None, ge=0)
     config: int = Field(ge=0)
+    metric: int | None = Field(default=None, ge=0, description="position in `design.metrics` of the one "
+                               "metric whose scoring failed; null when the whole fit failed")
+    stage: Literal["fit", "score", "predict"] | None = Field(
+        default=None, description="what failed: the fit (every metric NaN), one metric's scoring, or the "
+                                  "outer-test predictions; null in assessments recorded before stages were kept")
     message: Text = Field(max_length=20_000)
 
 
@@ -365,6 +374,9 @@ def _check_consistency(payload: AssessmentPayload) -> None:
     _refuse_duplicates("families", family_names)
     _refuse_duplicates("configurations", [config.id for config in payload.configurations])
     _refuse_duplicates("design.metrics", design.metrics)
+    strangers = sorted(set(design.scorers) - set(design.metrics))
+    if strangers:
+        raise ValueError(f"design.scorers: describes {strangers}, which design.metrics does not name")
     for position, config in enumerate(payload.configurations):
         if config.family not in family_names:
             raise ValueError(f"configurations[{position}].family: {config.family!r} is not in families")
@@ -411,6 +423,12 @@ def _check_consistency(payload: AssessmentPayload) -> None:
         if failure.inner_fold is not None and failure.inner_fold >= design.n_inner_folds:
             raise ValueError(f"failures[{position}].inner_fold: {failure.inner_fold} is out of range of "
                              f"design.n_inner_folds (0..{design.n_inner_folds - 1})")
+        if failure.metric is not None and failure.metric >= n_metrics:
+            raise ValueError(f"failures[{position}].metric: {failure.metric} is not a position in design.metrics "
+                             f"(0..{n_metrics - 1})")
+        if failure.metric is not None and failure.stage not in (None, "score"):
+            raise ValueError(f"failures[{position}].metric: a {failure.stage!r} failure fails every metric, so "
+                             f"metric must be null; give stage 'score' for one metric's failure")
 
     for position, family in enumerate(payload.families):
         if family.estimator_skops is not None:

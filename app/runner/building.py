@@ -25,6 +25,7 @@ from foldwise.payload import (
     canonical_params,
 )
 from foldwise.runner.fitting import FitResult
+from foldwise.runner.metadata import without_requests
 from foldwise.runner.space import Space
 from foldwise.runner.splits import Layout
 
@@ -33,7 +34,7 @@ _RECORDED_PACKAGES = ("foldwise", "scikit-learn", "numpy", "scipy", "pandas", "j
 
 def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, classes, classifier,
                   results: dict[tuple, FitResult], choices, refit_all, n_features, grouped,
-                  selected_by: str = "inner_mean") -> AssessmentPayload:
+                  selected_by: str = "inner_mean", scorers: dict[str, str] | None = None) -> AssessmentPayload:
     splits, targets = layout.splits, np.asarray(y)
     inner, outer = _columns(metrics, True), _columns(metrics, False)
     predictions, failures, models = [], [], []
@@ -51,15 +52,19 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             text = None if result.model is None else _skops_text(result.model, "a fitted fold winner")
             if text is not None:
                 models.append(FittedModel(skops=text, **where))
+        inner_fold = key[2] if key[0] == "inner" else None
         if result.error:
-            failures.append(Failure(level=key[0], inner_fold=key[2] if key[0] == "inner" else None,
-                                    message=result.error, **where))
+            failures.append(Failure(level=key[0], inner_fold=inner_fold, stage="fit", message=result.error,
+                                    **where))
+        failures += [Failure(level=key[0], inner_fold=inner_fold, stage=problem.stage, metric=problem.metric,
+                             message=problem.message, **where) for problem in result.problems]
 
     family_winners, overall_winners = [], []
     for split, (winners, overall) in zip(splits, choices, strict=True):
         fold = {"repeat": split.repeat, "outer_fold": split.outer_fold}
         family_winners += [FoldChoice(config=c, **fold) for c in winners if c is not None]
-        overall_winners.append(FoldChoice(config=overall, **fold))
+        if overall is not None:  # else every configuration failed there: a failed fold, its fits in failures
+            overall_winners.append(FoldChoice(config=overall, **fold))
 
     return AssessmentPayload(
         name=name, dataset=dataset,
@@ -68,7 +73,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             n_features=n_features, n_repeats=layout.n_repeats, n_outer_folds=layout.n_outer_folds,
             n_inner_folds=layout.n_inner_folds, outer_splitter=layout.outer_splitter,
             inner_splitter=layout.inner_splitter, grouped=grouped, refit_all=refit_all, metrics=metrics,
-            classes=classes, selected_by=selected_by),
+            scorers=scorers or {}, classes=classes, selected_by=selected_by),
         families=[Family(name=family, estimator=repr(estimator),
                          estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}",
                          estimator_skops=_skops_text(estimator, f"family {family!r}'s estimator"))
@@ -100,7 +105,7 @@ def _skops_text(estimator, what: str) -> str | None:
 
     ``bytes`` are a skops file already (the journal wrote the model when it arrived)."""
     try:
-        data = estimator if isinstance(estimator, bytes) else skops.io.dumps(estimator)
+        data = estimator if isinstance(estimator, bytes) else skops.io.dumps(without_requests(estimator))
         return base64.b64encode(data).decode("ascii")
     except Exception as error:  # skops refuses some objects (open files, lambdas): the run still counts
         warnings.warn(f"skops could not write {what} ({type(error).__name__}: {error}); it is not kept, so "

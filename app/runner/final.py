@@ -22,6 +22,7 @@ from sklearn.model_selection import check_cv
 from foldwise.definitions import select_in_fold
 from foldwise.payload import FinalScores, FinalSelection
 from foldwise.runner.fitting import FitResult, FitTask
+from foldwise.runner.metadata import without_requests
 from foldwise.runner.space import Space
 
 
@@ -40,9 +41,11 @@ def final_tasks(splits, n_configs: int) -> list[FitTask]:
 
 
 def final_selection(space: Space, splits, inner_splitter: str, results: dict[tuple, FitResult], metrics,
-                    X, y, *, keep_model: bool = True) -> FinalSelection:
+                    X, y, *, keep_model: bool = True, fit_params: dict[str, dict] | None = None,
+                    raises: bool = False) -> FinalSelection:
     """Choose by the inner scores of ``results`` (keys ``("final", inner_fold, config)``), refit the winner
-    on every row (kept as a skops file unless ``keep_model`` is False)."""
+    on every row (kept as a skops file unless ``keep_model`` is False) with its family's ``fit_params``
+    over every row (``nested_cv(params=...)`` as routed); ``raises`` lets a failing refit propagate."""
     n_configs, n_folds = len(space.candidates), len(splits)
     inner = np.array([[results[("final", i, c)].scores[metrics[0]] for i in range(n_folds)]
                       for c in range(n_configs)])
@@ -62,7 +65,8 @@ def final_selection(space: Space, splits, inner_splitter: str, results: dict[tup
                 failures.append(f"inner fold {i}, {space.candidates[c].id}: {result.error}")
     model, fit_time, error = None, None, None
     if chosen.overall is not None:
-        model, fit_time, error = _refit(space, chosen.overall, X, y)
+        family = space.candidates[chosen.overall].family
+        model, fit_time, error = _refit(space, chosen.overall, X, y, (fit_params or {}).get(family, {}), raises)
     return FinalSelection(
         n_inner_folds=n_folds, inner_splitter=inner_splitter, inner_scores=FinalScores(**columns),
         family_winners=[c for c in chosen.family if c is not None], config=chosen.overall,
@@ -70,20 +74,22 @@ def final_selection(space: Space, splits, inner_splitter: str, results: dict[tup
         model_skops=_skops(model) if model is not None and keep_model else None)
 
 
-def _refit(space: Space, config: int, X, y):
+def _refit(space: Space, config: int, X, y, fit_params: dict, raises: bool):
     candidate = space.candidates[config]
     model = clone(space.estimators[candidate.family]).set_params(**clone(candidate.params, safe=False))
     started = time.perf_counter()
     try:
-        model.fit(X, y)
+        model.fit(X, y, **fit_params)
     except Exception as error:  # kept as data, as any failed fit: the selection still stands
+        if raises:
+            raise
         return None, None, f"{type(error).__name__}: {error}"[:10_000]
     return model, time.perf_counter() - started, None
 
 
 def _skops(model) -> str | None:
     try:
-        return base64.b64encode(skops.io.dumps(model)).decode("ascii")
+        return base64.b64encode(skops.io.dumps(without_requests(model))).decode("ascii")
     except Exception as error:
         warnings.warn(f"skops could not write the final model ({type(error).__name__}: {error}); its choice "
                       "and scores are kept, the model is not", RuntimeWarning, stacklevel=3)

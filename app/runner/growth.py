@@ -41,6 +41,8 @@ from sklearn.utils import _safe_indexing
 
 from foldwise.payload import canonical_params
 from foldwise.runner.fitting import FitResult, FitTask, fit_and_score
+from foldwise.runner.metadata import FamilyMetadata
+from foldwise.runner.scoring import Scoring
 from foldwise.runner.space import Space
 
 _COUNT = {
@@ -79,17 +81,18 @@ def count_parameter(estimator) -> str | None:
     return None if count is None else prefix + count
 
 
-def run_chain(tasks: list[FitTask], estimator, params: list[dict], X, y, scorer, metrics,
-              classes) -> list[FitResult]:
+def run_chain(tasks: list[FitTask], estimator, params: list[dict], X, y, scoring: Scoring,
+              metadata: FamilyMetadata, classes) -> list[FitResult]:
     """Fit one chain's configurations on one fold by growing a single model, recording each step."""
     train, test = tasks[0].train, tasks[0].test
     models = [clone(estimator).set_params(**clone(step, safe=False)) for step in params]
+    fit_params, score_params = metadata.split(X, train, test)
     return grow_chain(tasks, models, _safe_indexing(X, train), _safe_indexing(y, train), _safe_indexing(X, test),
-                      _safe_indexing(y, test), scorer, metrics, classes)
+                      _safe_indexing(y, test), scoring, classes, fit_params=fit_params, score_params=score_params)
 
 
-def grow_chain(tasks: list[FitTask], models: list, X_train, y_train, X_test, y_test, scorer, metrics, classes, *,
-               keep=None) -> list[FitResult]:
+def grow_chain(tasks: list[FitTask], models: list, X_train, y_train, X_test, y_test, scoring: Scoring, classes, *,
+               fit_params: dict, score_params: dict, keep=None) -> list[FitResult]:
     """Grow one model through ``models`` (each configuration set up, unfitted, smallest count first).
 
     Each step's ``fit_time`` is the model's whole fit time, the earlier steps' included (what a fresh
@@ -105,8 +108,9 @@ def grow_chain(tasks: list[FitTask], models: list, X_train, y_train, X_test, y_t
             model, inherited = configured.set_params(**{warm: True}), 0.0
         else:
             model.set_params(**{count: configured.get_params()[count]})
-        result = fit_and_score(task, model, X_train, y_train, X_test, y_test, scorer, metrics, classes,
-                               started_cpu=started_cpu, keep=partial(_kept, task=task, warm=warm, keep=keep))
+        result = fit_and_score(task, model, X_train, y_train, X_test, y_test, scoring, classes,
+                               fit_params=fit_params, score_params=score_params, started_cpu=started_cpu,
+                               keep=partial(_kept, task=task, warm=warm, keep=keep))
         result.fit_time += inherited
         result.inherited_time = inherited
         inherited = result.fit_time

@@ -31,10 +31,12 @@ from sklearn.base import clone
 
 from foldwise.runner.building import package_versions
 from foldwise.runner.fitting import FitResult, FitTask
+from foldwise.runner.metadata import without_requests
+from foldwise.runner.scoring import FitProblem
 from foldwise.runner.space import Space
 from foldwise.runner.splits import Layout
 
-FORMAT = "foldwise journal 1"
+FORMAT = "foldwise journal 2"  # 2 added problems: the metrics or predictions a fit that ran lost
 MODES = ("resume", "overwrite")
 _PARTS = ("data", "grid", "scorer", "splits", "versions", "options")
 _SCHEMA = """
@@ -45,6 +47,7 @@ CREATE TABLE IF NOT EXISTS journal_fits (
     fit_time REAL NOT NULL, score_time REAL NOT NULL, cpu_time REAL NOT NULL, inherited_time REAL NOT NULL,
     prediction_kind TEXT, prediction_shape TEXT, prediction BLOB,  -- float64, C order
     error TEXT,
+    problems TEXT NOT NULL,         -- JSON [[stage, metric position or null, message], ...]
     model BLOB                      -- skops bytes of a kept fold winner
 );
 """
@@ -125,14 +128,15 @@ class Journal:
         self.done: dict[tuple, FitResult] = {
             result.key: result for result in map(_result_from_row, self._connection.execute(
                 "SELECT key, scores, fit_time, score_time, cpu_time, inherited_time, prediction_kind, "
-                "prediction_shape, prediction, error, model FROM journal_fits"))}
+                "prediction_shape, prediction, error, problems, model FROM journal_fits"))}
 
     def result_for(self, task: FitTask) -> FitResult | None:
         """The journaled result of ``task``, if it holds all the task asks for."""
         found = self.done.get(task.key)
         if found is None or (task.keep_model and not found.error and found.model is None):
             return None  # a kept model skops could not write is fitted again (and warned about again)
-        if task.predict and not found.error and found.prediction is None:
+        if task.predict and not found.error and found.prediction is None and \
+                not any(problem.stage == "predict" for problem in found.problems):
             return None
         return found
 
@@ -144,7 +148,7 @@ class Journal:
             model = result.model if isinstance(result.model, bytes) else None
             if result.model is not None and model is None:
                 try:
-                    model = skops.io.dumps(result.model)
+                    model = skops.io.dumps(without_requests(result.model))
                 except Exception:  # skops refuses some objects; the payload warns about it at the end
                     model = None
                 else:
@@ -154,11 +158,12 @@ class Journal:
                 np.ascontiguousarray(result.prediction[1], dtype=np.float64).tobytes())
             rows.append((json.dumps(list(result.key)), json.dumps(result.scores), result.fit_time,
                          result.score_time, result.cpu_time, result.inherited_time, kind, shape, data,
-                         result.error, model))
+                         result.error, json.dumps([[p.stage, p.metric, p.message] for p in result.problems]),
+                         model))
         with self._connection:
             self._connection.execute("BEGIN")
             self._connection.executemany(
-                "INSERT OR REPLACE INTO journal_fits VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                "INSERT OR REPLACE INTO journal_fits VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
 
     def count(self) -> int:
         return self._connection.execute("SELECT count(*) FROM journal_fits").fetchone()[0]
@@ -181,8 +186,9 @@ def _refuse_other_runs(path: Path, stored: dict[str, str], mine: Fingerprint) ->
 
 
 _WHAT_CHANGED_MEANS = ("data: X, y or groups; grid: the families' estimators or configurations; scorer: the "
-                       "metrics or the classes; splits: the outer or inner folds; versions: Python or a package; "
-                       "options: refit_all, keep_predictions, keep_models, grow or share_prefixes")
+                       "metrics, what each scored, or the classes; splits: the outer or inner folds; versions: "
+                       "Python or a package; options: refit_all, keep_predictions, keep_models, grow, "
+                       "share_prefixes, params, error_score or metadata routing")
 
 
 def _is_journal(path: Path) -> bool:
@@ -199,10 +205,10 @@ def _is_journal(path: Path) -> bool:
 
 
 def _result_from_row(row) -> FitResult:
-    key, scores, fit_time, score_time, cpu_time, inherited, kind, shape, data, error, model = row
+    key, scores, fit_time, score_time, cpu_time, inherited, kind, shape, data, error, problems, model = row
     prediction = None if kind is None else (kind, np.frombuffer(data, dtype=np.float64).reshape(json.loads(shape)))
     return FitResult(tuple(json.loads(key)), json.loads(scores), fit_time, score_time, cpu_time, prediction,
-                     error, model, inherited)
+                     error, model, inherited, tuple(FitProblem(*problem) for problem in json.loads(problems)))
 
 
 def _estimator_digest(estimator) -> str:

@@ -4,13 +4,15 @@ from __future__ import annotations
 
 import sys
 import warnings
+from collections import Counter
 from collections.abc import Iterable
 
+import joblib
 import numpy as np
 from sklearn.base import is_classifier
-from sklearn.metrics import check_scoring, get_scorer_names
-from sklearn.model_selection import GridSearchCV, RandomizedSearchCV
+from sklearn.model_selection import GridSearchCV, RandomizedSearchCV, check_cv
 from sklearn.model_selection._search import BaseSearchCV
+from sklearn.utils.metadata_routing import _routing_enabled
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.validation import _num_samples
 
@@ -22,15 +24,17 @@ from foldwise.runner.final import final_selection, final_splits, final_tasks
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.journal import MODES, Journal, fingerprint
+from foldwise.runner.metadata import Routed, route
 from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
+from foldwise.runner.scoring import Scoring, resolve_scoring, selecting_first
 from foldwise.runner.space import Space, space_from
 from foldwise.runner.splits import Layout, lay_out
 from foldwise.runner.whole_search import nested_whole_search
 
 
-def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_jobs=None, progress=True,
-              name=None, dataset=None, refit_all=True, keep_predictions=True,
+def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, params=None, error_score=np.nan,
+              n_jobs=None, progress=True, name=None, dataset=None, refit_all=True, keep_predictions=True,
               keep_models=False, grow=True, final=False, share_prefixes=True, checkpoint=None,
               checkpoint_mode="resume") -> Assessment:
     """Run a nested cross-validation and keep every score.
@@ -45,12 +49,25 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
     outer, inner : int or splitter
         Resolved with ``check_cv``: stratified for classifiers. A search object's own ``cv`` is its
         inner splitter.
-    scoring : str or list of str, optional
-        scikit-learn scorer names; the first selects. Defaults to accuracy (classifiers) or r2.
+    scoring : str, list of str, dict, scorer object or callable, optional
+        As ``GridSearchCV`` takes it: a scorer name, a list of names, a dict ``{name: scorer}``, a
+        scorer object (``make_scorer(fbeta_score, beta=2)``) or a callable ``(estimator, X, y)``, named
+        "score". The first metric (or a search object's ``refit`` metric) selects. Defaults to
+        accuracy (classifiers) or r2.
     groups : array-like, optional
         Group labels, passed to the outer splitter and, restricted to the outer training rows, to
         the inner one (an int ``inner`` resolves to an ungrouped splitter: pass e.g. ``GroupKFold``
         to keep groups apart inside too).
+    params : dict, optional
+        Fit parameters and other metadata (``{"sample_weight": w}``), as ``cross_validate(...,
+        params=...)`` takes them: indexed per split at both levels and routed to the families' ``fit``,
+        the scorers and the splitters as scikit-learn routes them (see ``foldwise.runner.metadata``).
+        A family given any is fitted step by step as its own pipeline would be, without sharing steps.
+    error_score : np.nan or "raise"
+        np.nan (default): a fit that raises is kept with NaN for every metric, a scorer that raises
+        with NaN for its metric alone, each with its message in ``Assessment.failures``; a fold in
+        which every configuration failed has no fold winner and counts as failed. "raise": stop at the
+        first failure with the original exception, for debugging.
     n_jobs : int, optional
         Workers of the one joblib pool; ``joblib.parallel_config(backend=...)`` picks where they run.
     refit_all : bool
@@ -94,6 +111,9 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         if checkpoint is not None:
             raise ValueError(f"checkpoint needs a space foldwise expands into configurations; a "
                              f"{type(space).__name__} is fitted whole on each outer fold")
+        if params or not (isinstance(error_score, float) and np.isnan(error_score)):
+            raise ValueError(f"params= and error_score= are not passed into a {type(space).__name__} fitted whole; "
+                             f"set error_score on the search itself, or pass a dict space or a GridSearchCV")
         return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
                                    progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
@@ -102,18 +122,27 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
         scoring = scoring if scoring is not None else _refit_first(space.scoring, space.refit)
     resolved = space_from(space)
     classifier = _task_of(resolved)
-    metrics = resolve_metrics(scoring, classifier)
-    layout = lay_out(X, y, groups, outer=outer, inner=inner, classifier=classifier)
+    scorers = resolve_scoring(scoring, next(iter(resolved.estimators.values())), classifier=classifier,
+                              error_score=error_score)
+    metrics = scorers.metrics
+    routed = route(params, groups, estimators=resolved.estimators, scoring=scorers,
+                   outer_cv=check_cv(outer, y, classifier=classifier),
+                   inner_cv=check_cv(inner, y, classifier=classifier))
+    layout = lay_out(X, y, routed.outer_groups, outer=outer, inner=inner, classifier=classifier,
+                     inner_groups=routed.inner_groups)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
-    scorer = check_scoring(next(iter(resolved.estimators.values())), scoring=metrics)
     chains = growth_chains(resolved, n_samples=_num_samples(X)) if grow else \
         [[c] for c in range(len(resolved.candidates))]
     journal = None if checkpoint is None else Journal(checkpoint, fingerprint(
-        X=X, y=y, groups=groups, space=resolved, layout=layout, metrics=metrics, classes=classes,
+        X=X, y=y, groups=groups, space=resolved, layout=layout, classes=classes,
+        metrics=[f"{name} = {scorers.custom[name]}" if name in scorers.custom else name for name in metrics],
         options={"refit_all": refit_all, "keep_predictions": keep_predictions, "keep_models": keep_models,
-                 "grow": grow, "share_prefixes": share_prefixes, "final": final}), mode=checkpoint_mode)
-    runner = _Runner(resolved, chains, shared_steps(resolved) if share_prefixes else {}, *data_for_workers(X, y),
-                     scorer, metrics, classes, journal)
+                 "grow": grow, "share_prefixes": share_prefixes, "final": final,
+                 "error_score": str(error_score), "routing": _routing_enabled(),
+                 "params": None if not params else joblib.hash(params, hash_name="sha1")}), mode=checkpoint_mode)
+    shared = shared_steps(resolved) if share_prefixes else {}
+    shared = {c: key for c, key in shared.items() if routed.families[resolved.candidates[c].family].is_empty}
+    runner = _Runner(resolved, chains, shared, *data_for_workers(X, y), scorers, routed, classes, journal)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
@@ -135,23 +164,26 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, n_job
                                                              wanted if keep_models else set()), bar))
 
         if final:
-            splits, inner_splitter = final_splits(X, y, groups, inner=inner, classifier=classifier)
+            splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
             tasks = final_tasks(splits, n_configs)
             bar.total += len(tasks)
             bar.refresh()
             ran = runner.run(pool, tasks, bar)
-            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y)
+            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y,
+                                     fit_params={family: routed.families[family].fit for family in resolved.estimators},
+                                     raises=scorers.raises)
             results.update(ran)
 
     if journal is not None:
         journal.close()
-    _warn_failures(list(results.values()))
+    _warn_failures(list(results.values()), _failed_folds(layout, choices))
     for key in [key for key in results if key[0] == "final"]:
         del results[key]  # kept in the payload's own part, not among the outer folds
     payload = build_payload(
         name=name or "nested cross-validation", dataset=dataset, space=resolved, layout=layout, y=y,
         metrics=metrics, classes=classes, classifier=classifier, results=results, choices=choices,
-        refit_all=refit_all, n_features=_n_features(X), grouped=groups is not None)
+        refit_all=refit_all, n_features=_n_features(X),
+        grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom)
     return Assessment(payload.model_copy(update={"final": chosen}) if final else payload)
 
 
@@ -159,10 +191,10 @@ class _Runner:
     """Hands the pool one job per fold and group of configurations that share work (a growth chain, or
     a pipeline's shared leading steps), and journals each job's results as they arrive."""
 
-    def __init__(self, space: Space, chains: list[list[int]], shared: dict[int, tuple], X, y, scorer, metrics,
-                 classes, journal: Journal | None = None):
+    def __init__(self, space: Space, chains: list[list[int]], shared: dict[int, tuple], X, y, scoring: Scoring,
+                 routed: Routed, classes, journal: Journal | None = None):
         self.space, self.X, self.y = space, X, y
-        self.scorer, self.metrics, self.classes = scorer, metrics, classes
+        self.scoring, self.routed, self.classes = scoring, routed, classes
         self.chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
         self.step_of = {c: step for chain in chains for step, c in enumerate(chain)}
         self.shared = shared
@@ -205,12 +237,14 @@ class _Runner:
 
     def _job(self, job: list[FitTask]):
         candidates = self.space.candidates
-        estimator = self.space.estimators[candidates[job[0].config].family]
+        family = candidates[job[0].config].family
+        estimator = self.space.estimators[family]
         params = [candidates[task.config].params for task in job]
-        data = (self.X, self.y, self.scorer, self.metrics, self.classes)
-        if self.group_of[job[0].config][0] == "prefix":
+        data = (self.X, self.y, self.scoring, self.routed.families[family], self.classes)
+        if self.group_of[job[0].config][0] == "prefix":  # only families without metadata share steps
             return delayed(run_shared)(job, estimator, params, [self.shared[task.config] for task in job],
-                                       [self.chain_of[task.config] for task in job], *data)
+                                       [self.chain_of[task.config] for task in job], self.X, self.y,
+                                       self.scoring, self.classes)
         if len(job) == 1:
             return delayed(run_fit)(job[0], estimator, params[0], *data)
         return delayed(run_chain)(job, estimator, params, *data)
@@ -232,43 +266,25 @@ def _outer_tasks_for(layout: Layout, pairs, predict: bool, keep=frozenset()) -> 
                     (s, c) in keep) for s, c in pairs]
 
 
-def _select(layout: Layout, space: Space, results: dict, metric: str) -> list[tuple[list, int]]:
+def _select(layout: Layout, space: Space, results: dict, metric: str) -> list[tuple[list, int | None]]:
+    """Each outer fold's family winners and overall winner (None where every configuration failed: the
+    fold then counts as failed, its fits' messages in the failures), by ``definitions.select_in_fold``."""
     families = [space.positions_of(family) for family in space.estimators]
     n_configs, choices = len(space.candidates), []
-    for s, split in enumerate(layout.splits):
+    for s in range(len(layout.splits)):
         inner = np.array([[results[("inner", s, i, c)].scores[metric] for i in range(layout.n_inner_folds)]
                           for c in range(n_configs)])
         chosen = select_in_fold(inner, families)
-        winners, overall = chosen.family, chosen.overall
-        if overall is None:
-            errors = {results[("inner", s, i, c)].error for i in range(layout.n_inner_folds)
-                      for c in range(n_configs)} - {None}
-            raise RuntimeError(f"every configuration failed in repeat {split.repeat}, outer fold "
-                               f"{split.outer_fold}; first errors: {sorted(errors)[:3]}")
-        choices.append((winners, overall))
+        choices.append((chosen.family, chosen.overall))
     return choices
 
 
 def resolve_metrics(scoring, classifier: bool) -> list[str]:
-    if scoring is None:
-        return ["accuracy" if classifier else "r2"]
-    metrics = [scoring] if isinstance(scoring, str) else list(scoring) if isinstance(scoring, list | tuple) \
-        else None
-    if not metrics or not all(isinstance(metric, str) for metric in metrics):
-        raise TypeError(f"scoring must be a scorer name or a list of them, got {scoring!r}")
-    unknown = sorted(set(metrics) - set(get_scorer_names()))
-    if unknown:
-        raise ValueError(f"unknown scorer names {unknown}; see sklearn.metrics.get_scorer_names()")
-    if len(set(metrics)) != len(metrics):
-        raise ValueError(f"scoring names a metric twice: {metrics}")
-    return metrics
+    """The metric names ``scoring`` gives (``foldwise.runner.scoring.resolve_scoring``)."""
+    return resolve_scoring(scoring, None, classifier=classifier).metrics
 
 
-def _refit_first(scoring, refit):
-    """A search scoring several metrics selects by the one its ``refit`` names: put that one first."""
-    if isinstance(scoring, list | tuple) and isinstance(refit, str) and refit in scoring:
-        return [refit, *(metric for metric in scoring if metric != refit)]
-    return scoring
+_refit_first = selecting_first
 
 
 def _task_of(space: Space) -> bool:
@@ -293,8 +309,41 @@ def _n_features(X) -> int | None:
     return int(shape[1]) if shape is not None and len(shape) == 2 else None
 
 
-def _warn_failures(records: list[FitResult]) -> None:
+def _failed_folds(layout: Layout, choices) -> list[str]:
+    return [f"repeat {split.repeat}, outer fold {split.outer_fold}"
+            for split, (_, overall) in zip(layout.splits, choices, strict=True) if overall is None]
+
+
+def _warn_failures(records: list[FitResult], failed_folds: list[str]) -> None:
+    """One warning at the end: how many fits failed or lost a part, counted by message, and the folds
+    left without a winner."""
     failed = [record for record in records if record.error]
+    partly = [record for record in records if not record.error and record.problems]
+    if not failed and not partly and not failed_folds:
+        return
+    said = []
     if failed:
-        warnings.warn(f"{len(failed)} of {len(records)} fits failed and were recorded with NaN scores; "
-                      f"first: {failed[0].error}", RuntimeWarning, stacklevel=3)
+        said.append(f"{len(failed)} of {len(records)} fits failed and were recorded with NaN scores")
+    if partly:
+        said.append(f"{len(partly)} {'more ' if failed else ''}fits lost a metric or their predictions (NaN or "
+                    f"missing there alone)")
+    counts = Counter(_headline(message) for record in records
+                     for message in ([record.error] if record.error else [p.message for p in record.problems]))
+    shown = [f"{count} × {message}" for message, count in counts.most_common(_MESSAGES_SHOWN)]
+    if len(counts) > _MESSAGES_SHOWN:
+        shown.append(f"{len(counts) - _MESSAGES_SHOWN} other messages")
+    text = "; ".join(said) + (": " + "; ".join(shown) if shown else "") + "."
+    if failed_folds:
+        text += (f" Every configuration failed in {len(failed_folds)} outer "
+                 f"{'fold' if len(failed_folds) == 1 else 'folds'} ({'; '.join(failed_folds)}): no fold winner "
+                 f"there, and the nested estimate counts {'it' if len(failed_folds) == 1 else 'them'} as failed.")
+    warnings.warn(text + " See Assessment.failures.", RuntimeWarning, stacklevel=3)
+
+
+_MESSAGES_SHOWN = 5
+
+
+def _headline(message: str) -> str:
+    """A message's first line, cut short: what the end-of-run warning counts by."""
+    line = (message.strip().splitlines() or [""])[0]
+    return line if len(line) <= 200 else line[:199] + "…"

@@ -39,10 +39,13 @@ from sklearn.utils import _safe_indexing
 
 from foldwise.runner.fitting import FitResult, FitTask, fit_and_score, run_fit
 from foldwise.runner.growth import grow_chain
+from foldwise.runner.metadata import FamilyMetadata
+from foldwise.runner.scoring import Scoring
 from foldwise.runner.space import Space
 
 _IDENTITY = (None, "passthrough")
 MOST_PER_JOB = 8
+_NO_METADATA = FamilyMetadata({}, {})
 
 
 def shared_steps(space: Space) -> dict[int, tuple]:
@@ -98,13 +101,13 @@ def prefix_groups(space: Space, keys: dict[int, tuple], chain_of: dict[int, int]
 
 
 def run_shared(tasks: list[FitTask], estimator, params: list[dict], keys: list[tuple], chains: list,
-               X, y, scorer, metrics, classes) -> list[FitResult]:
+               X, y, scoring: Scoring, classes) -> list[FitResult]:
     """Fit one fold's configurations of a group, each shared step once; results in the tasks' order.
 
     ``chains`` names each task's growth chain: tasks of one chain (consecutive, smallest count first)
-    grow one model of the last step.
+    grow one model of the last step. Only families given no metadata (``params=``) share steps.
     """
-    shared = _SharedFit(estimator, X, y, scorer, metrics, classes)
+    shared = _SharedFit(estimator, X, y, scoring, classes)
     members = [_Member(task, step, clone(estimator).set_params(**clone(step, safe=False)), key, chain)
                for task, step, key, chain in zip(tasks, params, keys, chains, strict=True)]
     train, test = tasks[0].train, tasks[0].test
@@ -127,9 +130,9 @@ class _Member:
 
 
 class _SharedFit:
-    def __init__(self, estimator, X, y, scorer, metrics, classes):
+    def __init__(self, estimator, X, y, scoring: Scoring, classes):
         self.estimator, self.X, self.y = estimator, X, y
-        self.scorer, self.metrics, self.classes = scorer, metrics, classes
+        self.scoring, self.classes = scoring, classes
         self.results: dict[tuple, FitResult] = {}
 
     def descend(self, members: list[_Member], depth: int, X_train, y_train, X_test, y_test,
@@ -152,7 +155,7 @@ class _SharedFit:
             except Exception:  # each configuration below fits on its own and records its own error
                 for member in group:
                     self.results[member.task.key] = run_fit(member.task, self.estimator, member.params, self.X,
-                                                            self.y, self.scorer, self.metrics, self.classes)
+                                                            self.y, self.scoring, _NO_METADATA, self.classes)
                 continue
             transform_time = time.perf_counter() - started - fit_time
             cpu_time = time.process_time() - started_cpu
@@ -174,14 +177,15 @@ class _SharedFit:
             pipeline.steps = [*((name, copy.deepcopy(step)) for name, step in fitted), (pipeline.steps[-1][0], model)]
             return pipeline
 
-        data = (X_train, y_train, X_test, y_test, self.scorer, self.metrics, self.classes)
+        data = (X_train, y_train, X_test, y_test, self.scoring, self.classes)
         for chain in _grouped(members, lambda member: member.chain):
             tasks = [member.task for member in chain]
             lasts = [member.pipeline.steps[-1][1] for member in chain]
             if len(chain) > 1:
-                results = grow_chain(tasks, lasts, *data, keep=kept)
+                results = grow_chain(tasks, lasts, *data, fit_params={}, score_params={}, keep=kept)
             else:
-                results = [fit_and_score(tasks[0], lasts[0], *data, started_cpu=time.process_time(),
+                results = [fit_and_score(tasks[0], lasts[0], *data, fit_params={}, score_params={},
+                                         started_cpu=time.process_time(),
                                          keep=lambda model, task=tasks[0]: kept(task, model))]
             for member, result in zip(chain, results, strict=True):
                 result.fit_time += member.fit_time

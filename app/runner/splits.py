@@ -29,14 +29,19 @@ class Layout:
     inner_splitter: str
 
 
-def lay_out(X, y, groups, *, outer, inner, classifier: bool) -> Layout:
+_SAME = object()
+
+
+def lay_out(X, y, groups, *, outer, inner, classifier: bool, inner_groups=_SAME) -> Layout:
     """Split the data into outer folds, and each outer training set into inner folds.
 
     ``outer`` and ``inner`` are ints or splitters, resolved with ``check_cv`` (stratified for
     classifiers), as ``GridSearchCV`` and ``cross_val_score`` resolve them. Inner splits see only the
-    outer training rows, and the group labels of those rows; an inner splitter that ignores groups
+    outer training rows, and the group labels of those rows (``inner_groups`` when given apart, as
+    metadata routing may send groups to one splitter only); an inner splitter that ignores groups
     splits them ungrouped.
     """
+    inner_groups = groups if inner_groups is _SAME else inner_groups
     outer_cv = check_cv(outer, y, classifier=classifier)
     raw = list(outer_cv.split(X, y, groups))
     n_repeats = int(getattr(outer_cv, "n_repeats", 1) or 1)
@@ -46,7 +51,7 @@ def lay_out(X, y, groups, *, outer, inner, classifier: bool) -> Layout:
     splits, inner_counts, inner_repr = [], set(), ""
     for i, (train, test) in enumerate(raw):
         y_train = _safe_indexing(y, train)
-        groups_train = None if groups is None else _safe_indexing(groups, train)
+        groups_train = None if inner_groups is None else _safe_indexing(inner_groups, train)
         inner_cv = check_cv(inner, y_train, classifier=classifier)
         inner_repr = repr(inner_cv)
         with warnings.catch_warnings():

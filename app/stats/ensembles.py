@@ -259,6 +259,10 @@ def score_ensemble(folds: Sequence[FoldMembers], *, task: str, metrics: Sequence
     # The arguments are ours, so the metrics' argument checks (a third of their time) can go.
     with config_context(skip_parameter_validation=True):
         for metric in metrics:
+            if metric not in get_scorer_names():  # a scorer of the user's own, which only the run had
+                unavailable[metric] = (f"{metric!r} is a scorer of the run's own, not a scikit-learn scorer name, "
+                                       f"so it cannot be recomputed from stored predictions")
+                continue
             rows += _scored_metric(folds, combined, metric, voting=voting, classes=classes,
                                    unavailable=unavailable)
     frame = pd.DataFrame(rows, columns=["repeat", "outer_fold", "metric", "score"])

@@ -21,7 +21,7 @@ from foldwise.store.lookup import created_at_of, find_assessment, require_assess
 INDEX_COLUMNS = ["uuid", "name", "dataset", "created_at", "task", "n_repeats", "n_outer_folds",
                  "n_inner_folds", "n_configs", "families", "selection_metric", "estimate_mean", "estimate_sd",
                  "estimate_n_used", "estimate_n_folds", "estimate_low", "estimate_high"]
-FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "message"]
+FAILURE_COLUMNS = ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "metric", "stage", "message"]
 _SCORES = {"score": "float64", "fit_time": "float64", "score_time": "float64"}
 
 
@@ -143,15 +143,21 @@ def family_winners_for(engine: Engine, uuid: str, *, metric: str | None = None) 
 
 
 def failures_for(engine: Engine, uuid: str) -> pd.DataFrame:
-    """The failed fits in payload order; ``inner_fold`` is a nullable Int64 (missing for outer fits)."""
+    """The failed fits, and failed parts of fits, in payload order; ``inner_fold`` is a nullable Int64
+    (missing for outer fits); ``metric`` names the one metric whose scoring failed (None: the whole fit
+    failed, or its predictions); ``stage`` is fit, score or predict (None when recorded before stages)."""
     f, c = tables.failures, tables.configurations
     with engine.connect() as connection:
         row = require_assessment(connection, uuid)
         query = (select(f.c.level, f.c.repeat, f.c.outer_fold, f.c.inner_fold, c.c.family,
-                        c.c.config_id.label("config"), f.c.message)
+                        c.c.config_id.label("config"), f.c.metric, f.c.stage, f.c.message)
                  .join(c, and_(c.c.assessment_id == f.c.assessment_id, c.c.position == f.c.config))
                  .where(f.c.assessment_id == row.id).order_by(f.c.position))
         frame = pd.read_sql(query, connection)
+    metrics = Design.model_validate(row.design).metrics
+    frame["metric"] = [None if position is None or position != position else metrics[int(position)]
+                       for position in frame["metric"]]
+    frame["stage"] = frame["stage"].astype(object).where(frame["stage"].notna(), None)
     return frame.astype({"repeat": "int64", "outer_fold": "int64", "inner_fold": "Int64"})[FAILURE_COLUMNS]
 
 

@@ -166,6 +166,8 @@ failures = _child(
     Column("inner_fold", Integer),
     Column("config", Integer, nullable=False),
     Column("message", Text, nullable=False),
+    Column("metric", Integer, comment="position in design.metrics of the one metric that failed; null: all"),
+    Column("stage", String(10), comment="fit, score or predict; null if recorded before stages were kept"),
 )
 
 fitted_models = _child(

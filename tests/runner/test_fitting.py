@@ -146,12 +146,17 @@ def test_a_family_failing_everywhere_leaves_the_others_to_win(cancer):
     assert np.isnan(summary.loc["broken", "mean"])
 
 
-def test_a_fold_where_everything_fails_raises(cancer):
+def test_a_run_where_everything_fails_returns_every_fold_failed(cancer):
     X, y = cancer
     space = {"broken": (FragileClassifier(bad=True), {"max_depth": [1, 2]})}
-    with pytest.raises(RuntimeError, match=r"every configuration failed in repeat 0, outer fold 0; "
-                                           r"first errors: \['ValueError: bad=True cannot be fitted'\]"):
-        nested_cv(space, X, y, outer=3, inner=3, progress=False)
+    with pytest.warns(RuntimeWarning, match=r"24 of 24 fits failed and were recorded with NaN scores: 24 × "
+                                            r"ValueError: bad=True cannot be fitted\. Every configuration failed "
+                                            r"in 3 outer folds \(repeat 0, outer fold 0; "):
+        assessment = nested_cv(space, X, y, outer=3, inner=3, progress=False)
+    assert assessment.payload.overall_winners == [] and assessment.payload.family_winners == []
+    estimate = assessment.nested_estimate
+    assert (estimate.n_used, estimate.n_folds) == (0, 3) and np.isnan(estimate.mean)
+    assert len(assessment.failures) == 2 * 3 * (3 + 1)
 
 
 def test_predictions_are_the_refit_models_probabilities(cancer):

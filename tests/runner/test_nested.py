@@ -146,7 +146,8 @@ def test_unknown_scorer_name_is_refused(cancer, classifier_space):
     X, y = cancer
     with pytest.raises(ValueError, match=r"unknown scorer names \['roc_area'\]; see sklearn.metrics.get_scorer_names"):
         nested_cv(classifier_space, X, y, scoring="roc_area", progress=False)
-    with pytest.raises(TypeError, match=r"scoring must be a scorer name or a list of them, got 3"):
+    with pytest.raises(TypeError, match=r"scoring must be a scorer name, a list of names, a dict \{name: scorer\}, "
+                                        r"a scorer object \(make_scorer\(...\)\) or a callable .*; got 3"):
         nested_cv(classifier_space, X, y, scoring=3, progress=False)
 
 

@@ -167,3 +167,15 @@ def test_bad_input_is_refused_with_what_was_received():
 def test_examples_run():
     results = doctest.testmod(ensembles, optionflags=doctest.NORMALIZE_WHITESPACE)
     assert results.attempted > 0 and results.failed == 0
+
+
+def test_a_metric_of_the_run_s_own_scorer_is_unavailable_not_a_crash():
+    # make_scorer(...) and callables are recorded under names of the user's (runner/scoring.py); the stored
+    # predictions cannot say what such a scorer computed, so the ensemble lists it as unavailable.
+    X, y = load_breast_cancer(return_X_y=True)
+    members = [DecisionTreeClassifier(max_depth=2, random_state=0)]
+    classes = np.unique(y).tolist()
+    folds, _ = _folds(members, X, y, StratifiedKFold(3), classes)
+    result = score_ensemble(folds, task="classification", metrics=["f2", "accuracy"], classes=classes)
+    assert "f2" in result.unavailable and "not a scikit-learn scorer name" in result.unavailable["f2"]
+    assert set(result.scores["metric"]) == {"accuracy"}

@@ -145,8 +145,8 @@ def test_unknown_assessments_give_none_or_a_clear_error(engine, stored, make_pay
 
 def test_failures_name_their_configuration_and_family(engine, stored):
     table = failures_for(engine, stored.uuid)
-    assert list(table.columns) == ["level", "repeat", "outer_fold", "inner_fold", "family", "config",
-                                   "message"]
+    assert list(table.columns) == ["level", "repeat", "outer_fold", "inner_fold", "family", "config", "metric",
+                                   "stage", "message"]
     assert table["inner_fold"].dtype == "Int64"
     for (_, row), failure in zip(table.iterrows(), stored.failures, strict=True):
         config = stored.configurations[failure.config]
@@ -154,6 +154,8 @@ def test_failures_name_their_configuration_and_family(engine, stored):
                                                                      failure.outer_fold)
         assert (row["family"], row["config"], row["message"]) == (config.family, config.id, failure.message)
         assert (row["inner_fold"] if failure.inner_fold is not None else None) == failure.inner_fold
+        expected_metric = None if failure.metric is None else stored.design.metrics[failure.metric]
+        assert (row["metric"], row["stage"]) == (expected_metric, failure.stage)
     assert pd.isna(table["inner_fold"].iloc[1])
 
 
