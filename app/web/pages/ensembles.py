@@ -6,7 +6,7 @@ import json
 from dataclasses import dataclass
 
 from fastapi import APIRouter, HTTPException, Query, Request
-from fastapi.responses import JSONResponse, Response
+from fastapi.responses import HTMLResponse, JSONResponse, Response
 from pydantic import BaseModel, ConfigDict, Field
 
 from foldwise.store import (
@@ -20,7 +20,9 @@ from foldwise.store import (
     get_ensemble,
     insert_ensemble,
 )
+from foldwise.web.answers import Ensemble, EnsembleEstimate, EnsembleWithEstimate
 from foldwise.web.ensemble_estimate import ensemble_estimate
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, to_csv
@@ -64,13 +66,15 @@ def ensemble_detail_context(engine, eid: str) -> EnsembleDetailContext:
                                  estimate_json=json.dumps(estimate))
 
 
-@router.get("/ensembles/{eid}", name="ensemble_detail")
+@router.get("/ensembles/{eid}", name="ensemble_detail", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def ensemble_detail(request: Request, eid: str):
     context = ensemble_detail_context(request.app.state.engine, eid)
     return request.app.state.templates.TemplateResponse(request, "ensemble_detail.html", {"page": context})
 
 
-@router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview")
+@router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview", response_model=EnsembleEstimate,
+            responses=error_responses(404, 422))
 def preview(request: Request, uuid: str, body: PreviewRequest):
     """Score the ensemble of ``members`` on every outer fold of every repeat from the stored predictions."""
     engine = request.app.state.engine
@@ -78,7 +82,8 @@ def preview(request: Request, uuid: str, body: PreviewRequest):
                              rope=body.rope)
 
 
-@router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble")
+@router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble", response_model=Ensemble,
+            responses=error_responses(404, 422))
 def save(request: Request, uuid: str, body: SaveRequest):
     """Save a named ensemble with its members, a note and its estimate (in one transaction)."""
     engine = request.app.state.engine
@@ -92,7 +97,10 @@ def save(request: Request, uuid: str, body: SaveRequest):
     return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
 
 
-@router.get("/api/assessments/{uuid}/ensembles", name="assessment_ensembles")
+@router.get("/api/assessments/{uuid}/ensembles", name="assessment_ensembles", response_model=list[Ensemble],
+            responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
+                             "description": "the saved ensembles, as JSON or (format=csv) one CSV row per member"},
+                       **error_responses(404, 422)})
 def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(json|csv)$")):
     """The assessment's saved ensembles; as CSV, one row per ensemble and member."""
     engine = request.app.state.engine
@@ -103,7 +111,8 @@ def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(j
     return [_ensemble_json(request, ensemble) for ensemble in ensembles_for(engine, uuid)]
 
 
-@router.get("/api/ensembles/{eid}", name="ensemble_json")
+@router.get("/api/ensembles/{eid}", name="ensemble_json", response_model=EnsembleWithEstimate,
+            responses=error_responses(404))
 def one(request: Request, eid: str):
     """A saved ensemble with its estimate recomputed from the stored predictions."""
     page = ensemble_detail_context(request.app.state.engine, eid)
@@ -111,14 +120,18 @@ def one(request: Request, eid: str):
                                                      "models_kept": page.models_kept}
 
 
-@router.delete("/api/ensembles/{eid}", status_code=204, name="delete_ensemble")
+@router.delete("/api/ensembles/{eid}", status_code=204, name="delete_ensemble", response_class=Response,
+               responses=error_responses(404))
 def delete(request: Request, eid: str):
     if not delete_ensemble(request.app.state.engine, eid):
         raise HTTPException(404, f"no ensemble {eid!r} in this store")
     return Response(status_code=204)
 
 
-@router.get("/api/ensembles/{eid}/spec", name="ensemble_spec")
+@router.get("/api/ensembles/{eid}/spec", name="ensemble_spec", response_class=Response,
+            responses={200: {"content": {"application/json": {"schema": {"type": "object"}}},
+                             "description": "a JSON file: the members' families, estimator classes and parameters"},
+                       **error_responses(404)})
 def spec(request: Request, eid: str):
     """The members as plain JSON (family, estimator class path, parameters): no foldwise needed to read it."""
     from foldwise.ensemble import ensemble_spec  # scikit-learn loads only when an ensemble is exported
@@ -130,7 +143,11 @@ def spec(request: Request, eid: str):
         "content-disposition": f'attachment; filename="ensemble-{eid}.json"'})
 
 
-@router.get("/api/ensembles/{eid}/model", name="ensemble_model")
+@router.get("/api/ensembles/{eid}/model", name="ensemble_model", response_class=Response,
+            responses={200: {"content": {"application/octet-stream": {"schema": {"type": "string",
+                                                                                 "format": "binary"}}},
+                             "description": "a skops file of the kept fold winners, averaged"},
+                       **error_responses(404, 409, 422)})
 def model(request: Request, eid: str):
     """A skops file of the kept fold winners of the members, averaged, ready to predict."""
     import skops.io
