@@ -32,7 +32,8 @@ router = APIRouter()
 
 class PreviewRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
-    members: list[str] = Field(description="configuration ids, each once")
+    members: list[str] = Field(description="configuration ids, each once",
+                               json_schema_extra={"minItems": 1, "uniqueItems": True})
     metric: str | None = Field(default=None, description="a recorded metric; default the selection metric")
     rope: float = Field(default=0.01, ge=0, description="half-width of the region of practical equivalence")
 
@@ -41,7 +42,7 @@ class SaveRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
     name: str = Field(min_length=1, max_length=200)
     note: str = Field(default="", max_length=5_000)
-    members: list[str]
+    members: list[str] = Field(json_schema_extra={"minItems": 1, "uniqueItems": True})
     metric: str | None = None
 
 

@@ -15,6 +15,7 @@ from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
+from foldwise.web.query import FoldNumber
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -109,7 +110,7 @@ def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int
 
 @router.get("/assessments/{uuid}/inner", name="inner_detail", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def inner_detail(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+def inner_detail(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                  metric: str | None = None):
     context = inner_detail_context(request.app.state.engine, uuid, repeat=repeat, outer_fold=outer_fold,
                                    metric=metric)
@@ -118,7 +119,7 @@ def inner_detail(request: Request, uuid: str, repeat: int = 0, outer_fold: int =
 
 @router.get("/api/assessments/{uuid}/inner", name="api_inner_detail", response_model=context_model(InnerDetailContext),
             responses=error_responses(404, 422))
-def inner_detail_json(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+def inner_detail_json(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                       metric: str | None = None):
     return context_json(inner_detail_context(request.app.state.engine, uuid, repeat=repeat,
                                              outer_fold=outer_fold, metric=metric))

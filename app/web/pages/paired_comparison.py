@@ -18,6 +18,7 @@ from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fol
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
+from foldwise.web.query import Rope
 from foldwise.web.serialise import plain
 
 router = APIRouter()
@@ -86,7 +87,7 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
 @router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str | None = None,
-                      metric: str | None = None, rope: float = 0.01):
+                      metric: str | None = None, rope: Rope = 0.01):
     context = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
     return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
 
@@ -94,7 +95,7 @@ def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str 
 @router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
             responses=error_responses(404, 422))
 def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b: str | None = None,
-                           metric: str | None = None, rope: float = 0.01):
+                           metric: str | None = None, rope: Rope = 0.01):
     """Paired tests of a − b over every outer fold of every repeat (a, b: families or configuration ids)."""
     page = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
