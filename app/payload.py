@@ -53,7 +53,18 @@ def _storable_text(text: str) -> str:
     return text
 
 
+def _one_line(text: str) -> str:
+    """A name shown in a table, a chart or a CSV cell: no control characters (a line break in a name would
+    start a new row where a spreadsheet reads it, and a formula after it)."""
+    for position, character in enumerate(text):
+        if character < " " or character == "\x7f":
+            raise ValueError(f"holds the control character {character!r} at position {position}; a name is "
+                             "one line of text without control characters")
+    return text
+
+
 Text = Annotated[str, AfterValidator(_storable_text)]
+Name = Annotated[str, AfterValidator(_storable_text), AfterValidator(_one_line)]
 Label = bool | int | FiniteFloat | Text
 
 
@@ -64,7 +75,7 @@ class _Strict(BaseModel):
 class Family(_Strict):
     """A model family: one estimator whose parameters the configurations vary."""
 
-    name: Text = Field(min_length=1, max_length=200)
+    name: Name = Field(min_length=1, max_length=200)
     estimator: Text = Field(default="", max_length=20_000, description="repr of the unfitted estimator")
     estimator_class: Text = Field(default="", max_length=500, description="import path of its class")
     estimator_skops: str | None = Field(default=None, description="base64 of skops.io.dumps of the unfitted "
@@ -74,8 +85,8 @@ class Family(_Strict):
 class Configuration(_Strict):
     """One point of a family's grid."""
 
-    id: Text = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
-    family: Text = Field(min_length=1, max_length=200)
+    id: Name = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
+    family: Name = Field(min_length=1, max_length=200)
     params: dict[str, Any] = Field(default_factory=dict)
 
 
@@ -92,7 +103,7 @@ class Design(_Strict):
     inner_splitter: str = Field(default="", max_length=2_000)
     grouped: bool = False
     refit_all: bool = Field(default=True, description="every configuration refit on every outer fold")
-    metrics: list[Text] = Field(min_length=1, description="scorer names; the first one selects")
+    metrics: list[Name] = Field(min_length=1, description="scorer names; the first one selects")
     classes: list[Label] | None = None
 
     @property
@@ -227,8 +238,8 @@ class AssessmentPayload(_Strict):
 
     schema_version: Literal[1, 2] = SCHEMA_VERSION
     uuid: UUID = Field(default_factory=uuid4)
-    name: Text = Field(min_length=1, max_length=200)
-    dataset: Text | None = Field(default=None, max_length=200)
+    name: Name = Field(min_length=1, max_length=200)
+    dataset: Name | None = Field(default=None, max_length=200)
     created_at: datetime = Field(default_factory=lambda: datetime.now(UTC))
     design: Design
     families: list[Family] = Field(min_length=1)

@@ -9,6 +9,7 @@ from fastapi import APIRouter, HTTPException, Query, Request
 from fastapi.responses import HTMLResponse, JSONResponse, Response
 from pydantic import BaseModel, ConfigDict, Field
 
+from foldwise.payload import Name
 from foldwise.store import (
     AssessmentRecord,
     EnsembleRecord,
@@ -40,8 +41,8 @@ class PreviewRequest(BaseModel):
 
 class SaveRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
-    name: str = Field(min_length=1, max_length=200)
-    note: str = Field(default="", max_length=5_000)
+    name: Name = Field(min_length=1, max_length=200)
+    note: str = Field(default="", max_length=5_000, description="free text; may hold line breaks")
     members: list[str] = Field(json_schema_extra={"minItems": 1, "uniqueItems": True})
     metric: str | None = None
 
