@@ -6,7 +6,7 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 DEMO_DB ?= .foldwise/demo.db
 
-.PHONY: demo test lint unit browser-deps pg-start pg-stop bench coverage clean
+.PHONY: demo test lint unit browser-deps node-deps pg-start pg-stop bench coverage clean
 
 $(VENV)/.installed-test: pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -31,6 +31,13 @@ browser-deps:
 	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null; \
 	  else echo "chromium is missing: install Debian's chromium package for the browser tests"; fi; }
 
+# node (Debian's nodejs) runs the README's JavaScript push against a real server; installed like chromium.
+node-deps:
+	@command -v node >/dev/null 2>&1 || { \
+	  if [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+	    apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq nodejs >/dev/null; \
+	  else echo "node is missing: install Debian's nodejs package for the JavaScript push test"; fi; }
+
 lint: $(VENV)/.installed-test
 	$(PY) -m ruff check app tests demo_data
 
@@ -47,7 +54,7 @@ pg-start:
 pg-stop:
 	bash .ci/postgres.sh stop
 
-test: browser-deps lint unit
+test: browser-deps node-deps lint unit
 
 # The benchmarks in tests/benchmarks/ (minutes; not part of `make test`). Every script runs; the target
 # fails when any of them missed a target.

@@ -31,7 +31,7 @@ def _unpack(value: dict, dtypes: dict[str, str]) -> np.ndarray:
     if set(value) != {"dtype", "data"}:
         raise ValueError(f"a packed column holds exactly the keys 'dtype' and 'data', received {sorted(value)}")
     dtype, data = value["dtype"], value["data"]
-    if dtype not in dtypes:
+    if not (isinstance(dtype, str) and dtype in dtypes):  # a list or an object is no dtype (nor hashable)
         raise ValueError(f"dtype {str(dtype)[:40]!r} is not one of {', '.join(dtypes)}")
     if not isinstance(data, str):
         raise ValueError(f"data must be base64 text, received {type(data).__name__}")
@@ -77,9 +77,10 @@ def _pack(values: list, dtype: str, info: SerializationInfo) -> list | dict[str,
     return {"dtype": dtype, "data": base64.b64encode(array.tobytes()).decode("ascii")}
 
 
-def _schema(item: dict) -> WithJsonSchema:
+def _schema(item: dict, dtypes: dict[str, str]) -> WithJsonSchema:
     packed = {"type": "object", "required": ["dtype", "data"], "additionalProperties": False,
-              "properties": {"dtype": {"type": "string"}, "data": {"type": "string", "contentEncoding": "base64"}}}
+              "properties": {"dtype": {"type": "string", "enum": list(dtypes)},
+                             "data": {"type": "string", "contentEncoding": "base64"}}}
     return WithJsonSchema({"anyOf": [{"type": "array", "items": item}, packed]})
 
 
@@ -92,9 +93,9 @@ def _pack_floats(values: list[float | None], info: SerializationInfo) -> list | 
 
 
 IntColumn = Annotated[list[int], WrapValidator(_ints), PlainSerializer(_pack_ints),
-                      _schema({"type": "integer"})]
+                      _schema({"type": "integer"}, _INT_TYPES)]
 FloatColumn = Annotated[list[float | None], WrapValidator(_floats), PlainSerializer(_pack_floats),
-                        _schema({"anyOf": [{"type": "number"}, {"type": "null"}]})]
+                        _schema({"anyOf": [{"type": "number"}, {"type": "null"}]}, _FLOAT_TYPES)]
 
 
 

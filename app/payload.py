@@ -55,9 +55,20 @@ def _storable_text(text: str) -> str:
     return text
 
 
+def _one_line(text: str) -> str:
+    """A name shown in a table, a chart or a CSV cell: no control characters (a line break in a name would
+    start a new row where a spreadsheet reads it, and a formula after it)."""
+    for position, character in enumerate(text):
+        if character < " " or character == "\x7f":
+            raise ValueError(f"holds the control character {character!r} at position {position}; a name is "
+                             "one line of text without control characters")
+    return text
+
+
 Text = Annotated[str, AfterValidator(_storable_text)]
+Name = Annotated[str, AfterValidator(_storable_text), AfterValidator(_one_line)]
 Label = bool | int | FiniteFloat | Text
-MetricName = Annotated[str, Field(min_length=1), AfterValidator(_storable_text)]
+MetricName = Annotated[str, Field(min_length=1), AfterValidator(_storable_text), AfterValidator(_one_line)]
 
 
 class _Strict(BaseModel):
@@ -68,7 +79,7 @@ class _Strict(BaseModel):
 class Family(_Strict):
     """A model family: one estimator whose parameters the configurations vary."""
 
-    name: Text = Field(min_length=1, max_length=200)
+    name: Name = Field(min_length=1, max_length=200)
     estimator: Text = Field(default="", max_length=20_000, description="repr of the unfitted estimator")
     estimator_class: Text = Field(default="", max_length=500, description="import path of its class")
     estimator_skops: str | None = Field(default=None, description="base64 of skops.io.dumps of the unfitted "
@@ -78,8 +89,8 @@ class Family(_Strict):
 class Configuration(_Strict):
     """One point of a family's grid."""
 
-    id: Text = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
-    family: Text = Field(min_length=1, max_length=200)
+    id: Name = Field(min_length=1, max_length=2_000, description="stable id: family plus canonical params")
+    family: Name = Field(min_length=1, max_length=200)
     params: dict[str, Any] = Field(default_factory=dict)
 
 
@@ -272,8 +283,8 @@ class AssessmentPayload(_Strict):
     schema_version: Literal[1, 2] = SCHEMA_VERSION
     uuid: UUID = Field(default_factory=uuid4, strict=False, description="the assessment's identity: pushing "
                        "it again with the same content is answered 200, with other content 409")
-    name: Text = Field(min_length=1, max_length=200)
-    dataset: Text | None = Field(default=None, max_length=200)
+    name: Name = Field(min_length=1, max_length=200)
+    dataset: Name | None = Field(default=None, max_length=200)
     created_at: datetime = Field(default_factory=lambda: datetime.now(UTC), strict=False)
     design: Design
     families: list[Family] = Field(min_length=1)

@@ -17,7 +17,8 @@
   function answer(response) {
     return response.json().then(function (body) {
       if (response.ok) { return body; }
-      throw new Error(typeof body.detail === "string" ? body.detail : JSON.stringify(body.detail));
+      // Every refusal's detail is a list of {loc, msg, type}: the messages name what was wrong.
+      throw new Error(body.detail.map(function (entry) { return entry.msg; }).join("; "));
     });
   }
 

@@ -11,7 +11,9 @@ document.addEventListener("DOMContentLoaded", function () {
       return response.json().then(function (body) { return { ok: response.ok, body: body }; });
     }).then(function (result) {
       output.hidden = false;
-      output.value = result.ok ? result.body.url : ("Could not make a link: " + result.body.detail);
+      // A refusal's detail is a list of {loc, msg, type}: the messages say what went wrong.
+      output.value = result.ok ? result.body.url : ("Could not make a link: " +
+        result.body.detail.map(function (entry) { return entry.msg; }).join("; "));
       output.select();
     });
   });

@@ -85,7 +85,7 @@ class LiveServer:
         self._wait()
         self.write_key = KeyFile(self.config_dir / "keys.json").ensure_write_key().secret
 
-    def _wait(self, timeout: float = 30.0) -> None:
+    def _wait(self, timeout: float = 90.0) -> None:  # a loaded CI machine can take half a minute to start it
         deadline = time.monotonic() + timeout
         while time.monotonic() < deadline:
             if self.process.poll() is not None:
@@ -124,3 +124,18 @@ def live_server(tmp_path_factory):
         os.environ.pop("FOLDWISE_KEY", None)
     else:
         os.environ["FOLDWISE_KEY"] = previous
+
+
+@pytest.fixture(scope="module")
+def start_live_server():
+    """Starts real servers on stores in folders the test module chooses (its config in folder/config, where
+    the module may have put keys first); stops them after the module."""
+    started = []
+
+    def start(folder: Path) -> LiveServer:
+        started.append(LiveServer(folder / "live.db", folder / "server.log"))
+        return started[-1]
+
+    yield start
+    for server in started:
+        server.stop()

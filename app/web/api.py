@@ -15,6 +15,16 @@ from foldwise.store import (
     outer_scores_for,
     winners_for,
 )
+from foldwise.web.answers import (
+    AssessmentAnswer,
+    AssessmentRow,
+    Health,
+    InnerScoreRow,
+    OuterScoreRow,
+    Pushed,
+    WinnerRow,
+)
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
@@ -33,17 +43,18 @@ def push_assessment(request: Request, payload: AssessmentPayload, background: Ba
     return stored(request, payload, background)
 
 
-router.add_api_route("/assessments", push_assessment, methods=["POST"], status_code=201,
-                     responses={200: {"description": "already stored"}}, route_class_override=PushRoute,
-                     openapi_extra=OPENAPI)
+router.add_api_route("/assessments", push_assessment, methods=["POST"], status_code=201, response_model=Pushed,
+                     responses={200: {"description": "this uuid is stored already, with the same content",
+                                      "model": Pushed}, **error_responses(409, 422)},
+                     route_class_override=PushRoute, openapi_extra=OPENAPI)
 
 
-@router.get("/assessments")
+@router.get("/assessments", response_model=list[AssessmentRow])
 def list_all(request: Request, dataset: str | None = None, name: str | None = None):
     return index_context(request.app.state.engine, dataset=dataset, name=name).assessments
 
 
-@router.get("/assessments/{uuid}")
+@router.get("/assessments/{uuid}", response_model=AssessmentAnswer, responses=error_responses(404, 422))
 def one(request: Request, uuid: str, metric: str | None = None):
     page = assessment_context(request.app.state.engine, uuid, metric=metric)
     record = page.record
@@ -58,7 +69,10 @@ def one(request: Request, uuid: str, metric: str | None = None):
     }
 
 
-@router.get("/assessments/{uuid}/scores")
+@router.get("/assessments/{uuid}/scores", response_model=list[InnerScoreRow] | list[OuterScoreRow],
+            responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
+                             "description": "the scores, as JSON rows or (format=csv) a CSV download"},
+                       **error_responses(404, 422)})
 def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "outer",
            format: Literal["json", "csv"] = Query("json")):
     engine = request.app.state.engine
@@ -70,7 +84,7 @@ def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "oute
     return records(frame)
 
 
-@router.get("/assessments/{uuid}/winners")
+@router.get("/assessments/{uuid}/winners", response_model=list[WinnerRow], responses=error_responses(404, 422))
 def winners(request: Request, uuid: str, metric: str | None = None,
             level: Literal["overall", "family"] = "overall"):
     """Fold winners with inner mean ± sd, outer score and optimism (inner mean − outer score)."""
@@ -83,7 +97,7 @@ def winners(request: Request, uuid: str, metric: str | None = None,
 health = APIRouter()
 
 
-@health.get("/healthz")
+@health.get("/healthz", response_model=Health)
 def healthz(request: Request):
     with request.app.state.engine.connect() as connection:
         connection.execute(text("SELECT 1"))

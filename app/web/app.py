@@ -4,19 +4,19 @@ from __future__ import annotations
 
 from contextlib import asynccontextmanager
 
-from fastapi import FastAPI, Request
-from fastapi.exceptions import RequestValidationError
-from fastapi.responses import FileResponse, JSONResponse
+from fastapi import FastAPI
+from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
-from starlette.exceptions import HTTPException as StarletteHTTPException
 
 import foldwise
 from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api, report, sharing
+from foldwise.web import api, errors, report, sharing
 from foldwise.web.formatting import CAUTION, FILTERS
+from foldwise.web.methods import MethodTable
+from foldwise.web.openapi import openapi_of
 from foldwise.web.pages import (
     assessment_detail,
     assessments_compare,
@@ -68,39 +68,16 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(assessments_compare.router)
     app.include_router(ensembles.router)
     app.include_router(sharing.router)
+    app.openapi = openapi_of(app, reads_need_key=settings.reads_need_key)
+    errors.install(app, templates)
     app.add_middleware(Guard, keys=keys, reads_need_key=settings.reads_need_key,
-                       max_body_bytes=settings.max_body_bytes)
+                       max_body_bytes=settings.max_body_bytes,
+                       methods=MethodTable(app.openapi, extra={app.openapi_url: {"GET", "HEAD"}}))
 
     @app.get("/vendor/plotly.min.js", include_in_schema=False, name="plotly_js")
     def plotly():
         return FileResponse(plotly_js(), media_type="text/javascript",
                             headers={"cache-control": "public, max-age=86400"})
-
-    @app.exception_handler(RequestValidationError)
-    async def invalid(request: Request, error: RequestValidationError):
-        # Name where the problem is and what is wrong, without echoing a large body back.
-        detail = [{"loc": list(e.get("loc", ())), "msg": e.get("msg", ""), "type": e.get("type", "")}
-                  for e in error.errors()]
-        return JSONResponse({"detail": detail}, status_code=422)
-
-    @app.exception_handler(StarletteHTTPException)
-    async def http_error(request: Request, error: StarletteHTTPException):
-        cause = error.__cause__
-        if error.status_code == 400 and cause is not None:
-            # FastAPI's answer to a JSON body json.loads could not read: a 422 naming the body, as for
-            # any other body that is not the JSON the route takes.
-            reason = (f"byte {cause.start} is not UTF-8" if isinstance(cause, UnicodeDecodeError)
-                      else "arrays or objects nest too deeply" if isinstance(cause, RecursionError)
-                      else str(cause).split(";")[0])
-            return JSONResponse({"detail": [{"loc": ["body"], "type": "json_invalid",
-                                             "msg": f"the body is not JSON this server can read ({reason}); "
-                                                    "send UTF-8 JSON"}]}, status_code=422)
-        if request.url.path.startswith("/api") or "text/html" not in request.headers.get("accept", ""):
-            return JSONResponse({"detail": error.detail}, status_code=error.status_code,
-                                headers=getattr(error, "headers", None))
-        return templates.TemplateResponse(request, "error.html", {"status": error.status_code,
-                                                                  "message": error.detail},
-                                          status_code=error.status_code)
 
     return app
 

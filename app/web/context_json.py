@@ -3,8 +3,13 @@
 from __future__ import annotations
 
 import dataclasses
+import functools
+import operator
+import types
+import typing
+from typing import Any
 
-from pydantic import BaseModel
+from pydantic import BaseModel, ConfigDict, create_model
 
 from foldwise.store import AssessmentRecord
 from foldwise.web.serialise import plain
@@ -33,3 +38,40 @@ def _json(value):
     if isinstance(value, list | tuple):
         return [_json(item) for item in value]
     return plain(value)
+
+
+@functools.cache
+def context_model(context_class: type) -> type[BaseModel]:
+    """The response model of ``context_json(context)``: the dataclass's fields as JSON names their types,
+    numbers nullable (NaN is null), the record as what names it, figures left out."""
+    hints = typing.get_type_hints(context_class)
+    fields = {field.name: (_json_type(hints[field.name]), ...) for field in dataclasses.fields(context_class)
+              if not field.name.endswith(("_figure", "_figures"))}
+    return create_model(context_class.__name__.removesuffix("Context") or context_class.__name__,
+                        __config__=ConfigDict(extra="allow"), **fields)
+
+
+class _RecordRef(BaseModel):
+    uuid: str
+    name: str
+    dataset: str | None
+    design: dict[str, Any]
+
+
+def _json_type(hint):
+    if hint is AssessmentRecord:
+        return _RecordRef
+    if dataclasses.is_dataclass(hint):
+        return context_model(hint)
+    if hint is float:
+        return float | None
+    if hint is dict:
+        return dict[str, Any]
+    origin, arguments = typing.get_origin(hint), typing.get_args(hint)
+    if origin in (types.UnionType, typing.Union):
+        return functools.reduce(operator.or_, [_json_type(argument) for argument in arguments])
+    if origin is list:
+        return list[_json_type(arguments[0])]
+    if origin is dict:
+        return dict[arguments[0], _json_type(arguments[1])]
+    return hint

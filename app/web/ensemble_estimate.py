@@ -31,7 +31,7 @@ def ensemble_estimate(engine, record: AssessmentRecord, members: list[str], *, m
 
     _check_members(record, members)
     if metric is not None:
-        metric_or_422(record, metric)
+        metric_or_422(record, metric, loc=("body", "metric"))
     design = record.design
     scored = score_ensemble(_fold_members(engine, record, members), task=design.task, metrics=design.metrics,
                             classes=design.classes)

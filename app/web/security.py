@@ -2,6 +2,8 @@
 
 One ASGI middleware, in front of every route:
 
+- a method the path does not take gets 405 naming those it does in ``Allow`` (``OPTIONS`` lists them),
+  before anything else is asked of the request;
 - a body larger than the limit gets 413 before the app reads it;
 - a request that changes the store needs a write key; with reads restricted (any address other than
   loopback, or when asked), every page and API call needs a read or write key;
@@ -11,6 +13,8 @@ One ASGI middleware, in front of every route:
 - a state-changing request that names an Origin must come from the dashboard's own origin (the
   SameSite cookie already keeps other sites' forms from carrying the key);
 - every response carries a strict Content-Security-Policy and its companions.
+
+Its refusals have the one shape of every refusal (``foldwise.web.errors``), located in the header or body.
 """
 
 from __future__ import annotations
@@ -20,12 +24,15 @@ import re
 from urllib.parse import parse_qsl, urlencode
 
 from foldwise.keys import KeyFile
+from foldwise.web.errors import KINDS, entry
+from foldwise.web.methods import MethodTable, allow_header
 
 COOKIE = "foldwise_key"
 _OPEN = re.compile(r"^/(healthz|static/|vendor/|favicon)")
 # POSTs that compute but store nothing: any reader may make them.
 _READ_ONLY_POSTS = re.compile(r"^/api/assessments/[^/]+/ensembles/preview$")
 _SAFE_METHODS = {"GET", "HEAD", "OPTIONS"}
+_CHALLENGE = [(b"www-authenticate", b'Bearer realm="foldwise"')]  # how to send a key (RFC 6750)
 _HEADERS = [
     (b"content-security-policy",
      b"default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data: blob:; "
@@ -39,8 +46,8 @@ _HEADERS = [
 
 
 class Guard:
-    def __init__(self, app, *, keys: KeyFile, reads_need_key: bool, max_body_bytes: int):
-        self.app, self.keys = app, keys
+    def __init__(self, app, *, keys: KeyFile, reads_need_key: bool, max_body_bytes: int, methods: MethodTable):
+        self.app, self.keys, self.methods = app, keys, methods
         self.reads_need_key, self.max_body_bytes = reads_need_key, max_body_bytes
 
     async def __call__(self, scope, receive, send):
@@ -50,10 +57,16 @@ class Guard:
         headers = {name.decode("latin-1"): value.decode("latin-1") for name, value in scope["headers"]}
         method, path = scope["method"], scope["path"]
 
+        allowed = self.methods.allowed(path)
+        if allowed is not None and method not in allowed:
+            return await _reply(send, 405, f"{path} takes {allow_header(allowed)}, not {method}", loc=["method"],
+                                headers=[(b"allow", allow_header(allowed).encode())])
+        if allowed is not None and method == "OPTIONS":
+            return await _options(send, allowed)
         length = headers.get("content-length", "")
         if length.isdigit() and int(length) > self.max_body_bytes:
             return await _reply(send, 413, f"the request body has {int(length)} bytes; this server takes at most "
-                                           f"{self.max_body_bytes} (FOLDWISE_MAX_BODY_MB)")
+                                           f"{self.max_body_bytes} (FOLDWISE_MAX_BODY_MB)", loc=["body"])
         if _OPEN.match(path):
             return await self.app(scope, receive, send)
 
@@ -66,24 +79,27 @@ class Guard:
         writes = method not in _SAFE_METHODS and not _READ_ONLY_POSTS.match(path)
         if method not in _SAFE_METHODS and not _same_origin(headers, scope):
             return await _reply(send, 403, "cross-origin request refused: state-changing requests must come "
-                                           "from this dashboard's own pages")
+                                           "from this dashboard's own pages", loc=["header", "origin"])
         if writes and (key is None or key.kind != "write"):
             return await _reply(send, 401, "this request changes the store and needs a write key: send "
-                                           "'Authorization: Bearer <key>' (see `foldwise keys show`)")
+                                           "'Authorization: Bearer <key>' (see `foldwise keys show`)",
+                               loc=["header", "authorization"], headers=_CHALLENGE)
         if self.reads_need_key and key is None:
             return await _reply(send, 401, "this dashboard needs a key: open the share link you were given, "
-                                           "or send 'Authorization: Bearer <key>'")
+                                           "or send 'Authorization: Bearer <key>'", loc=["header", "authorization"],
+                               headers=_CHALLENGE)
         if method not in _SAFE_METHODS and not length.isdigit():
             body = await _read_at_most(receive, self.max_body_bytes)
             if body is None:
                 return await _reply(send, 413, f"the request body is over this server's limit of "
-                                               f"{self.max_body_bytes} bytes (FOLDWISE_MAX_BODY_MB)")
+                                               f"{self.max_body_bytes} bytes (FOLDWISE_MAX_BODY_MB)", loc=["body"])
             receive = _replay(body, receive)
         return await self.app(scope, receive, send)
 
     async def _trade_for_cookie(self, scope, send, offered: str, query) -> None:
         if self.keys.find(offered) is None:
-            return await _reply(send, 401, "this link's key is not valid (it may have been revoked)")
+            return await _reply(send, 401, "this link's key is not valid (it may have been revoked)",
+                                loc=["query", "key"], headers=_CHALLENGE)
         rest = urlencode([(name, value) for name, value in query if name != "key"])
         location = scope["path"] + (f"?{rest}" if rest else "")
         cookie = f"{COOKIE}={offered}; HttpOnly; SameSite=Strict; Path=/; Max-Age=2592000"
@@ -132,11 +148,18 @@ def _with_headers(send):
     return sending
 
 
-async def _reply(send, status: int, detail: str) -> None:
-    body = json.dumps({"detail": detail}).encode()
+async def _reply(send, status: int, msg: str, *, loc: list[str], headers=()) -> None:
+    body = json.dumps({"detail": [entry(msg, loc=loc, type=KINDS[status])]}).encode()
     await send({"type": "http.response.start", "status": status,
-                "headers": [(b"content-type", b"application/json"), (b"content-length", str(len(body)).encode())]})
+                "headers": [(b"content-type", b"application/json"), (b"content-length", str(len(body)).encode()),
+                            *headers]})
     await send({"type": "http.response.body", "body": body})
+
+
+async def _options(send, allowed: frozenset[str]) -> None:
+    await send({"type": "http.response.start", "status": 204,
+                "headers": [(b"allow", allow_header(allowed).encode())]})
+    await send({"type": "http.response.body", "body": b""})
 
 
 def _bearer(headers: dict) -> str | None:
@@ -158,3 +181,16 @@ def _same_origin(headers: dict, scope) -> bool:
         return True
     host = headers.get("host", "")
     return origin in (f"{scope.get('scheme', 'http')}://{host}", f"http://{host}", f"https://{host}")
+
+
+def needs_write_key(path: str, method: str) -> bool:
+    return method not in _SAFE_METHODS and not _READ_ONLY_POSTS.match(path)
+
+
+def guard_statuses(path: str, method: str) -> list[int]:
+    """The refusals the guard may give on a route, for the OpenAPI schema: every page and API call can meet
+    a key it does not take (a revoked link, reads restricted), a state-changing one another site's page
+    or a body over the limit."""
+    if _OPEN.match(path):
+        return []
+    return [401] if method in _SAFE_METHODS else [401, 403, 413]

@@ -2,13 +2,19 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import math
+import re
 
 import numpy as np
 import pandas as pd
 
 _FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+# A spreadsheet may start a new row, or a new cell, after a line break in a cell: a formula character
+# right after one is neutralised as at the start of the cell.
+_FORMULA_AFTER_BREAK = re.compile(r"([\r\n])(?=[=+\-@\t\r])")
 
 
 def records(frame: pd.DataFrame) -> list[dict]:
@@ -41,12 +47,16 @@ def to_csv(frame: pd.DataFrame) -> str:
         # pandas 3 keeps text in a string dtype, older pandas as object: both may hold formulas.
         if pd.api.types.is_object_dtype(frame[column]) or pd.api.types.is_string_dtype(frame[column]):
             frame[column] = [_cell(value) for value in frame[column]]
-    return frame.to_csv(index=False)
+    out = io.StringIO()
+    # Every text cell quoted (numbers stay bare), so a comma, quote or line break in a name splits nothing.
+    frame.to_csv(out, index=False, quoting=csv.QUOTE_NONNUMERIC, lineterminator="\r\n")
+    return out.getvalue()
 
 
 def _cell(value):
     if isinstance(value, dict | list):
         value = json.dumps(value, sort_keys=True)
-    if isinstance(value, str) and value.startswith(_FORMULA_STARTS):
-        return "'" + value
-    return value
+    if not isinstance(value, str):
+        return value
+    value = _FORMULA_AFTER_BREAK.sub(r"\1'", value)
+    return "'" + value if value.startswith(_FORMULA_STARTS) else value

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from urllib.parse import urlsplit
 
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Request
 from pydantic import BaseModel, Field
 
 from foldwise.keys import KeyFile
+from foldwise.web.answers import ShareLink
+from foldwise.web.errors import error_responses, refusal
 
 router = APIRouter(prefix="/api")
 
@@ -27,11 +29,11 @@ def share_link(keys: KeyFile, base_url: str, path: str) -> str:
     return f"{base_url.rstrip('/')}{path}{joiner}key={key.secret}"
 
 
-@router.post("/share-links", name="share_links")
+@router.post("/share-links", name="share_links", response_model=ShareLink, responses=error_responses(422))
 def create_share_link(request: Request, body: ShareRequest):
     """A link for a teammate: opening it once sets their read-key cookie and shows the same view."""
     try:
         url = share_link(request.app.state.keys, str(request.base_url), body.path)
     except ValueError as error:
-        raise HTTPException(422, str(error)) from None
+        raise refusal(422, str(error), loc=["body", "path"]) from None
     return {"url": url}

@@ -418,7 +418,7 @@ def test_body_over_the_limit_gets_413_and_one_at_the_limit_is_read(tmp_path, val
         response = test_client.post("/api/assessments", content=content, headers=JSON)
         assert ("content-length" not in response.request.headers) is chunked
         assert response.status_code == 413, response.text
-        message = response.json()["detail"]
+        message = response.json()["detail"][0]["msg"]
         assert f"{len(body) - 1}" in message and "FOLDWISE_MAX_BODY_MB" in message, message
         assert test_client.get("/api/assessments").json() == []
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.definitions import nested_estimate
@@ -17,6 +18,7 @@ from foldwise.store import (
     outer_scores_for,
     winners_for,
 )
+from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
@@ -81,7 +83,8 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
         n_failures=len(failures), ensembles=ensembles_for(engine, uuid))
 
 
-@router.get("/assessments/{uuid}", name="assessment_detail")
+@router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def assessment_detail(request: Request, uuid: str, metric: str | None = None):
     context = assessment_context(request.app.state.engine, uuid, metric=metric)
     return request.app.state.templates.TemplateResponse(request, "assessment_detail.html", {"page": context})

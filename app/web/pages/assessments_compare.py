@@ -4,18 +4,23 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Annotated
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentRecord, list_assessments, outer_scores_for
+from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
+from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
 from foldwise.web.lookup import record_or_404
 from foldwise.web.palette import family_colours
+from foldwise.web.query import Rope
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -80,17 +85,20 @@ def assessments_compare_context(engine, *, x: str | None, y: str | None, metric:
         differences_figure=paired_strips_figure(comparisons, rope=rope) if comparisons else None,
         intervals_figure=intervals_figure(summaries, colours=family_colours(families)))
 
-@router.get("/compare", name="assessments_compare")
+@router.get("/compare", name="assessments_compare", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def assessments_compare(request: Request, x: str | None = None, y: str | None = None,
-                        metric: str | None = None, rope: float = 0.01):
+                        metric: str | None = None, rope: Rope = 0.01):
     context = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
     return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
                                                         {"page": context})
 
 
-@router.get("/api/compare", name="assessments_compare_json")
-def assessments_compare_json(request: Request, x: str, y: str,
-                             metric: str | None = None, rope: float = 0.01):
+@router.get("/api/compare", name="assessments_compare_json", response_model=AssessmentsComparison,
+            responses=error_responses(404, 422))
+def assessments_compare_json(request: Request, x: Annotated[str, Query(min_length=1)],
+                             y: Annotated[str, Query(min_length=1)],
+                             metric: str | None = None, rope: Rope = 0.01):
     """Two assessments: paired tests family by family when their outer folds match, else summaries."""
     page = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
     return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,

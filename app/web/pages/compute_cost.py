@@ -6,11 +6,13 @@ from dataclasses import asdict, dataclass
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise.stats.planner import project_wall_time
 from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
 from foldwise.web.charts.cost import cost_figure
-from foldwise.web.context_json import context_json
+from foldwise.web.context_json import context_json, context_model
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain
@@ -114,7 +116,8 @@ def _counts(**given: str | None) -> dict[str, int | None]:
     return counts
 
 
-@router.get("/assessments/{uuid}/cost", name="compute_cost")
+@router.get("/assessments/{uuid}/cost", name="compute_cost", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def compute_cost(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
                  repeats: str | None = None, configs: str | None = None, cores: str | None = None):
     counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
@@ -122,7 +125,8 @@ def compute_cost(request: Request, uuid: str, outer: str | None = None, inner: s
     return request.app.state.templates.TemplateResponse(request, "compute_cost.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/cost", name="api_compute_cost")
+@router.get("/api/assessments/{uuid}/cost", name="api_compute_cost", response_model=context_model(CostContext),
+            responses=error_responses(404, 422))
 def compute_cost_json(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
                       repeats: str | None = None, configs: str | None = None, cores: str | None = None):
     counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)

@@ -6,9 +6,10 @@ import json
 from dataclasses import dataclass
 
 from fastapi import APIRouter, HTTPException, Query, Request
-from fastapi.responses import JSONResponse, Response
+from fastapi.responses import HTMLResponse, JSONResponse, Response
 from pydantic import BaseModel, ConfigDict, Field
 
+from foldwise.payload import Name
 from foldwise.store import (
     AssessmentRecord,
     EnsembleRecord,
@@ -20,7 +21,9 @@ from foldwise.store import (
     get_ensemble,
     insert_ensemble,
 )
+from foldwise.web.answers import Ensemble, EnsembleEstimate, EnsembleWithEstimate
 from foldwise.web.ensemble_estimate import ensemble_estimate
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, to_csv
@@ -30,16 +33,17 @@ router = APIRouter()
 
 class PreviewRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
-    members: list[str] = Field(description="configuration ids, each once")
+    members: list[str] = Field(description="configuration ids, each once",
+                               json_schema_extra={"minItems": 1, "uniqueItems": True})
     metric: str | None = Field(default=None, description="a recorded metric; default the selection metric")
     rope: float = Field(default=0.01, ge=0, description="half-width of the region of practical equivalence")
 
 
 class SaveRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
-    name: str = Field(min_length=1, max_length=200)
-    note: str = Field(default="", max_length=5_000)
-    members: list[str]
+    name: Name = Field(min_length=1, max_length=200)
+    note: str = Field(default="", max_length=5_000, description="free text; may hold line breaks")
+    members: list[str] = Field(json_schema_extra={"minItems": 1, "uniqueItems": True})
     metric: str | None = None
 
 
@@ -64,13 +68,15 @@ def ensemble_detail_context(engine, eid: str) -> EnsembleDetailContext:
                                  estimate_json=json.dumps(estimate))
 
 
-@router.get("/ensembles/{eid}", name="ensemble_detail")
+@router.get("/ensembles/{eid}", name="ensemble_detail", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def ensemble_detail(request: Request, eid: str):
     context = ensemble_detail_context(request.app.state.engine, eid)
     return request.app.state.templates.TemplateResponse(request, "ensemble_detail.html", {"page": context})
 
 
-@router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview")
+@router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview", response_model=EnsembleEstimate,
+            responses=error_responses(404, 422))
 def preview(request: Request, uuid: str, body: PreviewRequest):
     """Score the ensemble of ``members`` on every outer fold of every repeat from the stored predictions."""
     engine = request.app.state.engine
@@ -78,7 +84,8 @@ def preview(request: Request, uuid: str, body: PreviewRequest):
                              rope=body.rope)
 
 
-@router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble")
+@router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble", response_model=Ensemble,
+            responses=error_responses(404, 422))
 def save(request: Request, uuid: str, body: SaveRequest):
     """Save a named ensemble with its members, a note and its estimate (in one transaction)."""
     engine = request.app.state.engine
@@ -92,7 +99,10 @@ def save(request: Request, uuid: str, body: SaveRequest):
     return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
 
 
-@router.get("/api/assessments/{uuid}/ensembles", name="assessment_ensembles")
+@router.get("/api/assessments/{uuid}/ensembles", name="assessment_ensembles", response_model=list[Ensemble],
+            responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
+                             "description": "the saved ensembles, as JSON or (format=csv) one CSV row per member"},
+                       **error_responses(404, 422)})
 def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(json|csv)$")):
     """The assessment's saved ensembles; as CSV, one row per ensemble and member."""
     engine = request.app.state.engine
@@ -103,7 +113,8 @@ def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(j
     return [_ensemble_json(request, ensemble) for ensemble in ensembles_for(engine, uuid)]
 
 
-@router.get("/api/ensembles/{eid}", name="ensemble_json")
+@router.get("/api/ensembles/{eid}", name="ensemble_json", response_model=EnsembleWithEstimate,
+            responses=error_responses(404))
 def one(request: Request, eid: str):
     """A saved ensemble with its estimate recomputed from the stored predictions."""
     page = ensemble_detail_context(request.app.state.engine, eid)
@@ -111,14 +122,18 @@ def one(request: Request, eid: str):
                                                      "models_kept": page.models_kept}
 
 
-@router.delete("/api/ensembles/{eid}", status_code=204, name="delete_ensemble")
+@router.delete("/api/ensembles/{eid}", status_code=204, name="delete_ensemble", response_class=Response,
+               responses=error_responses(404))
 def delete(request: Request, eid: str):
     if not delete_ensemble(request.app.state.engine, eid):
         raise HTTPException(404, f"no ensemble {eid!r} in this store")
     return Response(status_code=204)
 
 
-@router.get("/api/ensembles/{eid}/spec", name="ensemble_spec")
+@router.get("/api/ensembles/{eid}/spec", name="ensemble_spec", response_class=Response,
+            responses={200: {"content": {"application/json": {"schema": {"type": "object"}}},
+                             "description": "a JSON file: the members' families, estimator classes and parameters"},
+                       **error_responses(404)})
 def spec(request: Request, eid: str):
     """The members as plain JSON (family, estimator class path, parameters): no foldwise needed to read it."""
     from foldwise.ensemble import ensemble_spec  # scikit-learn loads only when an ensemble is exported
@@ -130,7 +145,11 @@ def spec(request: Request, eid: str):
         "content-disposition": f'attachment; filename="ensemble-{eid}.json"'})
 
 
-@router.get("/api/ensembles/{eid}/model", name="ensemble_model")
+@router.get("/api/ensembles/{eid}/model", name="ensemble_model", response_class=Response,
+            responses={200: {"content": {"application/octet-stream": {"schema": {"type": "string",
+                                                                                 "format": "binary"}}},
+                             "description": "a skops file of the kept fold winners, averaged"},
+                       **error_responses(404, 409, 422)})
 def model(request: Request, eid: str):
     """A skops file of the kept fold winners of the members, averaged, ready to predict."""
     import skops.io

@@ -7,11 +7,13 @@ from dataclasses import dataclass
 
 import pandas as pd
 from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise.payload import Configuration
 from foldwise.store import AssessmentRecord, family_winners_for, winners_for
 from foldwise.web.charts.stability import choice_bars_figure
-from foldwise.web.context_json import context_json
+from foldwise.web.context_json import context_json, context_model
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import records
@@ -104,12 +106,15 @@ def _key(value) -> str:
     return json.dumps(value, sort_keys=True)
 
 
-@router.get("/assessments/{uuid}/fold-winners", name="fold_winners")
+@router.get("/assessments/{uuid}/fold-winners", name="fold_winners", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def fold_winners(request: Request, uuid: str, metric: str | None = None):
     context = fold_winners_context(request.app.state.engine, uuid, metric=metric)
     return request.app.state.templates.TemplateResponse(request, "fold_winners.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/fold-winners", name="api_fold_winners")
+@router.get("/api/assessments/{uuid}/fold-winners", name="api_fold_winners",
+            response_model=context_model(FoldWinnersContext),
+            responses=error_responses(404, 422))
 def fold_winners_json(request: Request, uuid: str, metric: str | None = None):
     return context_json(fold_winners_context(request.app.state.engine, uuid, metric=metric))

@@ -5,8 +5,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise.store import ensemble_counts, list_assessments
+from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
 from foldwise.web.serialise import records
 
@@ -31,7 +33,8 @@ def index_context(engine, *, dataset: str | None, name: str | None) -> IndexCont
     return IndexContext(rows, dataset or "", name or "", total)
 
 
-@router.get("/", name="index")
+@router.get("/", name="index", response_class=HTMLResponse,
+            responses=error_responses(422, html=True))
 def index(request: Request, dataset: str | None = None, name: str | None = None):
     context = index_context(request.app.state.engine, dataset=dataset, name=name)
     return request.app.state.templates.TemplateResponse(request, "index.html", {"page": context})

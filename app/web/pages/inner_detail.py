@@ -7,12 +7,15 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
 from foldwise.web.charts.inner import inner_heatmap_figure
-from foldwise.web.context_json import context_json
+from foldwise.web.context_json import context_json, context_model
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
+from foldwise.web.query import FoldNumber
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -105,16 +108,18 @@ def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int
         family_winner=bool(outer["family_winner"].any()), overall_winner=bool(outer["overall_winner"].any()))
 
 
-@router.get("/assessments/{uuid}/inner", name="inner_detail")
-def inner_detail(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+@router.get("/assessments/{uuid}/inner", name="inner_detail", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
+def inner_detail(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                  metric: str | None = None):
     context = inner_detail_context(request.app.state.engine, uuid, repeat=repeat, outer_fold=outer_fold,
                                    metric=metric)
     return request.app.state.templates.TemplateResponse(request, "inner_detail.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/inner", name="api_inner_detail")
-def inner_detail_json(request: Request, uuid: str, repeat: int = 0, outer_fold: int = 0,
+@router.get("/api/assessments/{uuid}/inner", name="api_inner_detail", response_model=context_model(InnerDetailContext),
+            responses=error_responses(404, 422))
+def inner_detail_json(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                       metric: str | None = None):
     return context_json(inner_detail_context(request.app.state.engine, uuid, repeat=repeat,
                                              outer_fold=outer_fold, metric=metric))

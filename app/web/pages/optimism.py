@@ -7,6 +7,7 @@ from typing import Literal
 
 import pandas as pd
 from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.agreement import rank_agreement
@@ -19,7 +20,8 @@ from foldwise.store import (
     winners_for,
 )
 from foldwise.web.charts.optimism import optimism_figure
-from foldwise.web.context_json import context_json
+from foldwise.web.context_json import context_json, context_model
+from foldwise.web.errors import error_responses
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
@@ -116,14 +118,16 @@ def _context(request: Request, uuid: str, metric, level) -> OptimismContext:
     return optimism_context(request.app.state.engine, uuid, metric=metric, level=level)
 
 
-@router.get("/assessments/{uuid}/optimism", name="optimism")
+@router.get("/assessments/{uuid}/optimism", name="optimism", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def optimism(request: Request, uuid: str, metric: str | None = None,
              level: Literal["overall", "family"] = "overall"):
     context = _context(request, uuid, metric, level)
     return request.app.state.templates.TemplateResponse(request, "optimism.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/optimism", name="api_optimism")
+@router.get("/api/assessments/{uuid}/optimism", name="api_optimism", response_model=context_model(OptimismContext),
+            responses=error_responses(404, 422))
 def optimism_json(request: Request, uuid: str, metric: str | None = None,
                   level: Literal["overall", "family"] = "overall"):
     return context_json(_context(request, uuid, metric, level))

@@ -6,15 +6,19 @@ from dataclasses import dataclass
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.store import AssessmentRecord, fold_sizes_for, outer_scores_for
+from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
+from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
+from foldwise.web.query import Rope
 from foldwise.web.serialise import plain
 
 router = APIRouter()
@@ -80,16 +84,18 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
         posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
 
 
-@router.get("/assessments/{uuid}/compare", name="paired_comparison")
+@router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str | None = None,
-                      metric: str | None = None, rope: float = 0.01):
+                      metric: str | None = None, rope: Rope = 0.01):
     context = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
     return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json")
+@router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
+            responses=error_responses(404, 422))
 def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b: str | None = None,
-                           metric: str | None = None, rope: float = 0.01):
+                           metric: str | None = None, rope: Rope = 0.01):
     """Paired tests of a − b over every outer fold of every repeat (a, b: families or configuration ids)."""
     page = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,

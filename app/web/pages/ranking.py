@@ -5,11 +5,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from fastapi import APIRouter, HTTPException, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.ranking import rank_families
 from foldwise.store import AssessmentRecord, outer_scores_for
+from foldwise.web.answers import Ranking
 from foldwise.web.charts.comparison import ranks_figure
+from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import family_fold_scores
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
@@ -55,13 +58,15 @@ def ranking_context(engine, uuid: str, *, metric: str | None) -> RankingContext:
         ranks_figure=ranks_figure(ranking.mean_ranks, ranking.critical_difference, colours))
 
 
-@router.get("/assessments/{uuid}/ranking", name="ranking")
+@router.get("/assessments/{uuid}/ranking", name="ranking", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def ranking(request: Request, uuid: str, metric: str | None = None):
     context = ranking_context(request.app.state.engine, uuid, metric=metric)
     return request.app.state.templates.TemplateResponse(request, "ranking.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/ranking", name="ranking_json")
+@router.get("/api/assessments/{uuid}/ranking", name="ranking_json", response_model=Ranking,
+            responses=error_responses(404, 422))
 def ranking_json(request: Request, uuid: str, metric: str | None = None):
     """Friedman's test over the outer folds, mean ranks (1 = best) and Nemenyi's critical difference."""
     page = ranking_context(request.app.state.engine, uuid, metric=metric)

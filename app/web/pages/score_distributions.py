@@ -7,11 +7,13 @@ from typing import Annotated, Literal
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi.responses import HTMLResponse
 
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentRecord, outer_scores_for
 from foldwise.web.charts.distributions import distribution_figure
-from foldwise.web.context_json import context_json
+from foldwise.web.context_json import context_json, context_model
+from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
@@ -137,7 +139,8 @@ def _context(request: Request, uuid: str, metric, by, sort, families) -> Distrib
                                        families=families)
 
 
-@router.get("/assessments/{uuid}/distributions", name="score_distributions")
+@router.get("/assessments/{uuid}/distributions", name="score_distributions", response_class=HTMLResponse,
+            responses=error_responses(404, 422, html=True))
 def score_distributions(request: Request, uuid: str, metric: str | None = None, by: By = "family",
                         sort: Sort = "mean", families: Families = None):
     context = _context(request, uuid, metric, by, sort, families)
@@ -145,7 +148,9 @@ def score_distributions(request: Request, uuid: str, metric: str | None = None, 
     return templates.TemplateResponse(request, "score_distributions.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/distributions", name="api_score_distributions")
+@router.get("/api/assessments/{uuid}/distributions", name="api_score_distributions",
+            response_model=context_model(DistributionsContext),
+            responses=error_responses(404, 422))
 def score_distributions_json(request: Request, uuid: str, metric: str | None = None, by: By = "family",
                              sort: Sort = "mean", families: Families = None):
     return context_json(_context(request, uuid, metric, by, sort, families))
