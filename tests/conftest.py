@@ -86,7 +86,7 @@ class LiveServer:
         self._wait()
         self.write_key = KeyFile(self.config_dir / "keys.json").ensure_write_key().secret
 
-    def _wait(self, timeout: float = 30.0) -> None:
+    def _wait(self, timeout: float = 90.0) -> None:  # a loaded machine takes long to import the app
         deadline = time.monotonic() + timeout
         while time.monotonic() < deadline:
             if self.process.poll() is not None:

@@ -9,7 +9,6 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from fastapi.templating import Jinja2Templates
 from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.middleware.gzip import GZipMiddleware
 
 import foldwise
 from foldwise.keys import KeyFile
@@ -18,6 +17,7 @@ from foldwise.store import make_engine
 from foldwise.web import api, report, sharing
 from foldwise.web.assets import app_assets, static_url
 from foldwise.web.charts.base import chart_style
+from foldwise.web.compression import Compressed
 from foldwise.web.formatting import CAUTION, FILTERS
 from foldwise.web.pages import (
     assessment_detail,
@@ -77,7 +77,7 @@ def create_app(settings: Settings) -> FastAPI:
                        max_body_bytes=settings.max_body_bytes)
     # Pages and API answers compressed on the way out (a chart page's figures are mostly JSON text);
     # static files arrive compressed already and pass through.
-    app.add_middleware(GZipMiddleware, minimum_size=1024)
+    app.add_middleware(Compressed, minimum_size=1024)
 
     @app.exception_handler(RequestValidationError)
     async def invalid(request: Request, error: RequestValidationError):

@@ -20,6 +20,7 @@ from jinja2 import pass_context
 from starlette.requests import Request
 from starlette.responses import PlainTextResponse, Response
 
+from foldwise.web.compression import accepts_gzip
 from foldwise.web.resources import plotly_js, static_dir
 
 _DIGEST_CHARS = 12
@@ -64,7 +65,7 @@ class Assets:
         digest = self.digest(name)
         media_type = _media_type(name)
         plain, gzipped = _encoded(self._files[name], digest, media_type.startswith(_COMPRESSIBLE))
-        use_gzip = gzipped is not None and _accepts_gzip(request.headers.get("accept-encoding", ""))
+        use_gzip = gzipped is not None and accepts_gzip(request.headers.get("accept-encoding", ""))
         etag = f'"{digest}-gzip"' if use_gzip else f'"{digest}"'
         headers = {"cache-control": cache_control, "etag": etag, "vary": "Accept-Encoding"}
         if etag in _tags(request.headers.get("if-none-match", "")):
@@ -109,24 +110,6 @@ def _media_type(name: str) -> str:
     if guessed == "application/javascript":
         guessed = "text/javascript"  # RFC 9239
     return f"{guessed}; charset=utf-8" if guessed.startswith("text/") else guessed
-
-
-def _accepts_gzip(header: str) -> bool:
-    """Whether an Accept-Encoding header (RFC 9110, 12.5.3) takes gzip: named, or by ``*``, with q > 0."""
-    weights = {}
-    for item in header.split(","):
-        coding, *parameters = [part.strip() for part in item.split(";")]
-        weight = 1.0
-        for parameter in parameters:
-            key, _, value = parameter.partition("=")
-            if key.strip().lower() == "q":
-                try:
-                    weight = float(value)
-                except ValueError:
-                    weight = 0.0
-        if coding:
-            weights[coding.lower()] = weight
-    return weights.get("gzip", weights.get("x-gzip", weights.get("*", 0.0))) > 0
 
 
 def _tags(header: str) -> set[str]:
