@@ -108,6 +108,12 @@ class LiveServer:
 
 
 @pytest.fixture
+def serving():
+    """``LiveServer`` itself, for a test that starts and stops a server of its own."""
+    return LiveServer
+
+
+@pytest.fixture
 def unused_port() -> int:
     return free_port()
 

@@ -10,7 +10,6 @@ import sys
 
 import httpx
 import pytest
-from conftest import LiveServer  # tests/conftest.py: `foldwise serve` on a free loopback port
 
 import foldwise
 from foldwise import cli
@@ -51,6 +50,7 @@ BAD_INPUT = {
     "mistyped path (check)": ["check", "--db", "runs/tpyo.db"],
     "mistyped path (backup)": ["backup", "copy.db", "--db", "runs/tpyo.db"],
     "mistyped path (serve)": ["serve", "--db", "runs/tpyo.db", "--port", "0"],
+    "mistyped path (report)": ["report", "00000000-0000-4000-8000-000000000000", "--db", "runs/tpyo.db"],
     "default store missing": ["list"],
     "unknown dialect": ["list", "--db", "mysqlx://user@host/db"],
     "unparsable URL": ["check", "--db", "://"],
@@ -104,7 +104,8 @@ def test_version_and_help_for_every_subcommand_and_option(tmp_path):
     assert _run(tmp_path, "--version").stdout.strip() == f"foldwise {foldwise.__version__}"
     parser = cli._parser()
     commands = next(action for action in parser._actions if isinstance(action, argparse._SubParsersAction))
-    assert set(commands.choices) == {"serve", "demo", "resend", "list", "keys", "share", "backup", "check"}
+    assert set(commands.choices) == {"serve", "demo", "resend", "list", "keys", "share", "backup", "check",
+                                    "report"}
     for name, sub in commands.choices.items():
         assert sub.description, name
         for action in sub._actions:
@@ -134,8 +135,8 @@ def test_list_shows_a_missing_dataset_and_estimate_as_a_dash(db_path, small_asse
 
 # --- share finds the running server ----------------------------------------------------------------------
 
-def test_serve_create_announces_itself_and_share_finds_its_port(tmp_path, capsys, monkeypatch):
-    server = LiveServer(tmp_path / "new" / "s.db", tmp_path / "server.log")  # `serve --create`
+def test_serve_create_announces_itself_and_share_finds_its_port(tmp_path, capsys, monkeypatch, serving):
+    server = serving(tmp_path / "new" / "s.db", tmp_path / "server.log")  # `serve --create`
     monkeypatch.setenv("FOLDWISE_CONFIG", str(server.config_dir))
     try:
         assert find_running(server.config_dir).url == server.url
