@@ -38,7 +38,9 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def _parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="foldwise", description=__doc__)
+    parser = argparse.ArgumentParser(prog="foldwise", description=(
+        "Keep, browse and compare every score of a nested cross-validation: serve the dashboard, run the "
+        "demo, resend spooled pushes, and list, check, back up or report on a store."))
     parser.add_argument("--version", action="version", version=f"foldwise {foldwise.__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
@@ -71,7 +73,7 @@ def _parser() -> argparse.ArgumentParser:
     listing = command("list", _list, "list the assessments in a store",
                       "List a store's assessments, newest first: uuid, time (UTC), name, dataset, selection "
                       "metric and nested estimate.")
-    listing.add_argument("--db", help=_DB_HELP)
+    listing.add_argument("--db", help=_DB_HELP, metavar="PATH_OR_URL")
 
     keys = command("keys", _keys, "show, list, create and revoke access keys",
                    "The write key (pushes, saving ensembles) and read keys for visitors, kept in keys.json in "
@@ -96,24 +98,24 @@ def _parser() -> argparse.ArgumentParser:
                      "Copy a SQLite store with SQLite's online backup, consistent even while a server writes "
                      "to it. PostgreSQL stores are backed up with pg_dump.")
     backup.add_argument("dest", help="new file to write (an existing file is never overwritten)")
-    backup.add_argument("--db", help=_DB_HELP)
+    backup.add_argument("--db", help=_DB_HELP, metavar="PATH_OR_URL")
 
     check = command("check", _check, "integrity check and row counts of a store",
                     "Run the database's integrity check and count the rows of every table; exits 1 when the "
                     "check finds a problem.")
-    check.add_argument("--db", help=_DB_HELP)
+    check.add_argument("--db", help=_DB_HELP, metavar="PATH_OR_URL")
 
     report = command("report", _report, "write a self-contained HTML report of one assessment",
                      "One HTML file a reviewer can open anywhere, with no network: methods, nested estimate, "
                      "families, fold winners, the model to ship, failures.")
     report.add_argument("uuid", help="the assessment, as `foldwise list` shows it")
     report.add_argument("-o", "--output", help="file to write (default: report-<uuid>.html)")
-    report.add_argument("--db", help=_DB_HELP)
+    report.add_argument("--db", help=_DB_HELP, metavar="PATH_OR_URL")
     return parser
 
 
 def _server_options(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--db", help=_DB_HELP)
+    parser.add_argument("--db", help=_DB_HELP, metavar="PATH_OR_URL")
     parser.add_argument("--host", help="address to bind (default 127.0.0.1: this machine only)")
     parser.add_argument("--port", type=_port, help="port (default 8000; 0 picks a free one)")
     parser.add_argument("--require-read-key", action="store_true", default=None,
@@ -257,6 +259,8 @@ def _demo(args) -> int:
     from foldwise.store import list_assessments, make_engine
 
     settings = _settings(args)
+    if not args.no_serve:
+        _bind(settings.host, settings.port).close()  # a busy port is said before minutes of computing
     engine = make_engine(settings.db_url)
     stored = list_assessments(engine, dataset="(invented)")
     engine.dispose()
