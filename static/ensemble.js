@@ -6,8 +6,8 @@
 (function () {
   "use strict";
 
-  // The ensemble in ink, the selection procedure in grey; the best family keeps its family colour.
-  var INK = "#1f2328", SELECTION = "#5b6470", MUTED = "#8a8f98";
+  // The page's one chart style (templates/base.html, from app/web/charts/base.py): config, layout, axes.
+  function chartStyle() { return JSON.parse(document.getElementById("foldwise-chart-style").textContent); }
 
   function number(value, digits) {
     return value === null || value === undefined ? "–" : value.toFixed(digits === undefined ? 3 : digits);
@@ -54,16 +54,17 @@
                y: estimate.folds.map(function (f) { return f[key]; }),
                line: { color: colour, dash: dash || "solid" }, marker: { color: colour } };
     }
-    var best = estimate.best_family.family;
-    var data = [trace("ensemble", "ensemble", INK), trace("selection procedure", "selection", SELECTION, "dash"),
-                trace("best family (" + best + ")", "best_family", (colours && colours[best]) || MUTED, "dot")];
-    var layout = { height: 260, margin: { l: 55, r: 15, t: 10, b: 40 }, paper_bgcolor: "white",
-                   plot_bgcolor: "white", font: { family: "system-ui, sans-serif", size: 12, color: INK },
-                   legend: { orientation: "h", y: -0.25 }, xaxis: { title: { text: "outer fold" } },
-                   yaxis: { title: { text: estimate.metric }, gridcolor: "#ece9e2" } };
+    // The ensemble in ink, the selection procedure in grey; the best family keeps its family colour.
+    var style = chartStyle(), best = estimate.best_family.family, inks = style.colours;
+    var data = [trace("ensemble", "ensemble", inks.ink), trace("selection procedure", "selection", inks.muted, "dash"),
+                trace("best family (" + best + ")", "best_family", (colours && colours[best]) || inks.muted, "dot")];
+    var layout = Object.assign({}, style.layout, {
+      height: 260, margin: { l: 55, r: 15, t: 10, b: 40 }, showlegend: true, legend: { orientation: "h", y: -0.25 },
+      xaxis: Object.assign({ title: { text: "outer fold" } }, style.axis),
+      yaxis: Object.assign({ title: { text: estimate.metric } }, style.axis) });
     target.dataset.drawn = "false";
     withPlotly(plotlyUrl, function (Plotly) {
-      Plotly.react(target, data, layout, { responsive: true, displaylogo: false }).then(function () {
+      Plotly.react(target, data, layout, style.config).then(function () {
         target.dataset.drawn = "true";
       });
     });
@@ -210,7 +211,7 @@
     this.part("comparison").textContent = comparisonText(estimate);
     estimate.member_details.forEach(function (member) {
       var item = element("li");
-      item.appendChild(element("span", null, "dot")).style.background = this.colours[member.family] || MUTED;
+      item.appendChild(element("span", null, "dot")).style.background = this.colours[member.family] || chartStyle().colours.muted;
       item.appendChild(element("code", member.config));
       item.appendChild(element("span", " family winner in " + folds(member.n_family_wins) + ", overall in " +
                                folds(member.n_overall_wins), "hint"));

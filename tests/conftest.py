@@ -79,7 +79,8 @@ class LiveServer:
         self.db_path, self.config_dir = db_path, db_path.parent / "config"
         self._log = open(log_path, "w")
         self.process = subprocess.Popen(
-            [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(db_path), "--port", str(self.port), *extra],
+            [sys.executable, "-m", "foldwise.cli", "serve", "--create", "--db", str(db_path), "--port", str(self.port),
+             *extra],
             stdout=self._log, stderr=subprocess.STDOUT,
             env={**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_CONFIG": str(self.config_dir)})
         self._wait()
@@ -104,6 +105,12 @@ class LiveServer:
         except subprocess.TimeoutExpired:
             self.process.kill()
         self._log.close()
+
+
+@pytest.fixture
+def serving():
+    """``LiveServer`` itself, for a test that starts and stops a server of its own."""
+    return LiveServer
 
 
 @pytest.fixture

@@ -95,7 +95,7 @@ class _Server:
     def start(self, timeout: float = 60.0) -> None:
         with open(self.log_path, "a") as log:
             self.process = subprocess.Popen(
-                [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(self.db_path),
+                [sys.executable, "-m", "foldwise.cli", "serve", "--create", "--db", str(self.db_path),
                  "--port", str(self.port)],
                 stdout=log, stderr=subprocess.STDOUT,
                 env={**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_CONFIG": str(self.config_dir)})

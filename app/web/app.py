@@ -5,8 +5,6 @@ from __future__ import annotations
 from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
-from fastapi.responses import FileResponse
-from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 
 import foldwise
@@ -14,6 +12,9 @@ from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
 from foldwise.web import api, errors, report, sharing
+from foldwise.web.assets import app_assets, static_url
+from foldwise.web.charts.base import chart_style
+from foldwise.web.compression import Compressed
 from foldwise.web.formatting import CAUTION, FILTERS
 from foldwise.web.methods import MethodTable
 from foldwise.web.openapi import openapi_of
@@ -31,7 +32,7 @@ from foldwise.web.pages import (
     ranking,
     score_distributions,
 )
-from foldwise.web.resources import plotly_js, static_dir, templates_dir
+from foldwise.web.resources import templates_dir
 from foldwise.web.security import Guard
 
 
@@ -48,10 +49,13 @@ def create_app(settings: Settings) -> FastAPI:
     app.state.engine = make_engine(settings.db_url)
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.filters.update(FILTERS)
-    templates.env.globals.update(caution=CAUTION, version=foldwise.__version__)
+    templates.env.globals.update(caution=CAUTION, version=foldwise.__version__, static_url=static_url,
+                                 chart_style=chart_style())
     app.state.templates = templates
 
-    app.mount("/static", StaticFiles(directory=str(static_dir())), name="static")
+    # Static files and plotly.js under /static/<digest>/<name>, gzipped once and cached for a year.
+    app.state.assets = app_assets()
+    app.add_route("/static/{path:path}", app.state.assets.respond, name="static", include_in_schema=False)
     app.include_router(api.router)
     app.include_router(api.health)
     app.include_router(index.router)
@@ -73,11 +77,9 @@ def create_app(settings: Settings) -> FastAPI:
     app.add_middleware(Guard, keys=keys, reads_need_key=settings.reads_need_key,
                        max_body_bytes=settings.max_body_bytes,
                        methods=MethodTable(app.openapi, extra={app.openapi_url: {"GET", "HEAD"}}))
-
-    @app.get("/vendor/plotly.min.js", include_in_schema=False, name="plotly_js")
-    def plotly():
-        return FileResponse(plotly_js(), media_type="text/javascript",
-                            headers={"cache-control": "public, max-age=86400"})
+    # Pages and API answers compressed on the way out (a chart page's figures are mostly JSON text);
+    # static files arrive compressed already and pass through.
+    app.add_middleware(Compressed, minimum_size=1024)
 
     return app
 

@@ -72,7 +72,7 @@ def test_refuses_a_non_loopback_address_without_a_read_key(tmp_path):
 
 def test_serve_refuses_to_start_on_another_address_without_a_read_key(tmp_path):
     result = subprocess.run(
-        [sys.executable, "-m", "foldwise.cli", "serve", "--db", str(tmp_path / "s.db"), "--host", "0.0.0.0",
+        [sys.executable, "-m", "foldwise.cli", "serve", "--create", "--db", str(tmp_path / "s.db"), "--host", "0.0.0.0",
          "--port", "1"], capture_output=True, text=True, timeout=60,
         env={"FOLDWISE_CONFIG": str(tmp_path / "config"), "PATH": "/usr/bin:/bin", "HOME": str(tmp_path)})
     assert result.returncode == 2

@@ -98,7 +98,7 @@ def test_health_and_schema_are_served(client):
 
 
 def test_plotly_is_served_locally(client):
-    response = client.get("/vendor/plotly.min.js")
+    response = client.get("/static/vendor/plotly.min.js")
     assert response.status_code == 200
     assert len(response.content) > 1_000_000
 
