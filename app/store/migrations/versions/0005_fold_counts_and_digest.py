@@ -34,6 +34,10 @@ def upgrade() -> None:
         "AND c.config = s.config WHERE s.assessment_id = assessments.id AND c.kind = 'overall' "
         "AND s.metric = 0 AND s.score IS NOT NULL)"))
     op.execute(sa.text("UPDATE inner_summaries SET inner_mean = NULL WHERE inner_std IS NULL"))
+    if op.get_bind().dialect.name != "sqlite":  # SQLite keeps no column comments
+        op.alter_column("inner_summaries", "inner_mean", existing_type=sa.Double(), existing_nullable=True,
+                        comment="mean of the inner scores; null when any fit failed",
+                        existing_comment="mean of the inner scores, failed fits left out")
 
 
 def downgrade() -> None:
