@@ -147,7 +147,10 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
     with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
-            Parallel(n_jobs=n_jobs, return_as="generator_unordered") as pool:
+            Parallel(n_jobs=n_jobs, return_as="generator_unordered",
+                     # With a journal, one job per dispatch: a job's fits are journaled as soon as it ends,
+                     # not when a batch of quick jobs does, so a killed run loses only what was running.
+                     batch_size=1 if journal is not None else "auto") as pool:
         first = [*_inner_tasks(layout, n_configs)]
         outer_at_once = refit_all and not keep_models
         if outer_at_once:
