@@ -136,4 +136,6 @@ def _seeds(space: Space, layout: Layout) -> dict:
                  if key == "random_state" or key.endswith("__random_state")}
         if found:
             seeds[family] = found
+    if space.drawn:  # random-search families: how their candidates were drawn (the candidates are the configurations)
+        seeds["drawn candidates"] = space.drawn
     return seeds

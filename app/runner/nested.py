@@ -10,8 +10,7 @@ from collections.abc import Iterable
 import joblib
 import numpy as np
 from sklearn.base import is_classifier
-from sklearn.model_selection import GridSearchCV, RandomizedSearchCV, check_cv
-from sklearn.model_selection._search import BaseSearchCV
+from sklearn.model_selection import check_cv
 from sklearn.utils.metadata_routing import _routing_enabled
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.validation import _num_samples
@@ -27,13 +26,14 @@ from foldwise.runner.journal import MODES, Journal, fingerprint
 from foldwise.runner.metadata import Routed, route
 from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
-from foldwise.runner.scoring import Scoring, resolve_scoring, selecting_first
-from foldwise.runner.space import Space, space_from
+from foldwise.runner.scoring import Scoring, resolve_scoring
+from foldwise.runner.searches import search_in, search_settings
+from foldwise.runner.space import EXPANDABLE, Space, space_from
 from foldwise.runner.splits import Layout, lay_out
 from foldwise.runner.whole_search import nested_whole_search
 
 
-def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, params=None, error_score=np.nan,
+def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, params=None, error_score=np.nan,
               n_jobs=None, progress=True, name=None, dataset=None, refit_all=True, keep_predictions=True,
               keep_models=False, grow=True, final=False, share_prefixes=True, checkpoint=None,
               checkpoint_mode="resume") -> Assessment:
@@ -102,24 +102,25 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
     _check_lengths(X, y, groups)
     if checkpoint_mode not in MODES:
         raise ValueError(f"checkpoint_mode must be one of {MODES}, got {checkpoint_mode!r}")
-    expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
-    if isinstance(space, BaseSearchCV) and not expandable:
+    search, family = search_in(space)
+    if search is not None:
+        inner, scoring = search_settings(search, inner, scoring)
+        space = {family: search}
+    if search is not None and (not isinstance(search, EXPANDABLE) or callable(search.refit)):
+        kind = type(search).__name__
         if keep_models:
             raise ValueError(f"keep_models=True needs a space foldwise expands into configurations; a "
-                             f"{type(space).__name__} is fitted whole on each outer fold, so pass a dict "
+                             f"{kind} is fitted whole on each outer fold, so pass a dict "
                              f"{{family: (estimator, grid)}} or a GridSearchCV / RandomizedSearchCV")
         if checkpoint is not None:
             raise ValueError(f"checkpoint needs a space foldwise expands into configurations; a "
-                             f"{type(space).__name__} is fitted whole on each outer fold")
+                             f"{kind} is fitted whole on each outer fold")
         if params or not (isinstance(error_score, float) and np.isnan(error_score)):
-            raise ValueError(f"params= and error_score= are not passed into a {type(space).__name__} fitted whole; "
+            raise ValueError(f"params= and error_score= are not passed into a {kind} fitted whole; "
                              f"set error_score on the search itself, or pass a dict space or a GridSearchCV")
-        return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
-                                   progress=progress, name=name, dataset=dataset,
+        return nested_whole_search(search, X, y, family=family, outer=outer, scoring=scoring, groups=groups,
+                                   n_jobs=n_jobs, progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
-    if isinstance(space, BaseSearchCV):
-        inner = space.cv if space.cv is not None else inner
-        scoring = scoring if scoring is not None else _refit_first(space.scoring, space.refit)
     resolved = space_from(space)
     classifier = _task_of(resolved)
     scorers = resolve_scoring(scoring, next(iter(resolved.estimators.values())), classifier=classifier,
@@ -286,8 +287,6 @@ def resolve_metrics(scoring, classifier: bool) -> list[str]:
     """The metric names ``scoring`` gives (``foldwise.runner.scoring.resolve_scoring``)."""
     return resolve_scoring(scoring, None, classifier=classifier).metrics
 
-
-_refit_first = selecting_first
 
 
 def _task_of(space: Space) -> bool:
