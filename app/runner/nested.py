@@ -23,6 +23,7 @@ from foldwise.runner.final import final_selection, final_splits, final_tasks
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.journal import MODES, Journal, fingerprint
+from foldwise.runner.keeping import check_trusted, keepable_families
 from foldwise.runner.metadata import Routed, route
 from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
@@ -35,7 +36,7 @@ from foldwise.runner.whole_search import nested_whole_search
 
 def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, params=None, error_score=np.nan,
               n_jobs=None, progress=True, name=None, dataset=None, refit_all=True, keep_predictions=True,
-              keep_models=False, grow=True, final=False, share_prefixes=True, checkpoint=None,
+              keep_models=False, trusted=None, grow=True, final=False, share_prefixes=True, checkpoint=None,
               checkpoint_mode="resume") -> Assessment:
     """Run a nested cross-validation and keep every score.
 
@@ -77,7 +78,14 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
     keep_models : bool
         Keep every family winner as fitted on its outer training set (skops files in the payload), so
         an ensemble of fold winners can be downloaded ready to predict. The outer refits then wait
-        for the inner folds' choices, so that only the winners' models are held.
+        for the inner folds' choices, so that only the winners' models are held. Only models the store's
+        loader reads back are kept: each family's estimator is checked at the start and each fitted
+        model at the end (``foldwise.runner.keeping``); a warning names those left out, whose ensembles
+        ``build_ensemble`` refits instead.
+    trusted : list of str, optional
+        Libraries (top-level module names, e.g. ``["xgboost"]``) whose own classes the loader may read
+        back from this assessment's kept models, recorded as ``design.trusted``. Never trusted by default:
+        loading a class can run its code.
     final : bool
         Also run the final selection (``foldwise.runner.final``): the inner splitter over every row, every
         configuration scored on each of its folds, the winner chosen by the outer folds' rule and refit on
@@ -100,6 +108,7 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         Resume from the journal at ``checkpoint`` (default), or start it afresh.
     """
     _check_lengths(X, y, groups)
+    trusted = check_trusted(trusted)
     if checkpoint_mode not in MODES:
         raise ValueError(f"checkpoint_mode must be one of {MODES}, got {checkpoint_mode!r}")
     search, family = search_in(space)
@@ -123,6 +132,7 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
                                    keep_predictions=keep_predictions)
     resolved = space_from(space)
     classifier = _task_of(resolved)
+    keepable = keepable_families(resolved.estimators, trusted) if keep_models else set()
     scorers = resolve_scoring(scoring, next(iter(resolved.estimators.values())), classifier=classifier,
                               error_score=error_score)
     metrics = scorers.metrics
@@ -138,6 +148,7 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         X=X, y=y, groups=groups, space=resolved, layout=layout, classes=classes,
         metrics=[f"{name} = {scorers.custom[name]}" if name in scorers.custom else name for name in metrics],
         options={"refit_all": refit_all, "keep_predictions": keep_predictions, "keep_models": keep_models,
+                 "trusted": trusted,
                  "grow": grow, "share_prefixes": share_prefixes, "final": final,
                  "error_score": str(error_score), "routing": _routing_enabled(),
                  "params": None if not params else joblib.hash(params, hash_name="sha1")}), mode=checkpoint_mode)
@@ -160,12 +171,13 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         choices = _select(layout, resolved, results, metrics[0])
         if not outer_at_once:
             wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
+            kept = {(s, c) for s, c in wanted if resolved.candidates[c].family in keepable}
             pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
                 else sorted(wanted)
             bar.total = len(first) + len(pairs)
             bar.refresh()
             results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions,
-                                                             wanted if keep_models else set()), bar))
+                                                             kept), bar))
 
         if final:
             splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
@@ -187,7 +199,8 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         name=name or "nested cross-validation", dataset=dataset, space=resolved, layout=layout, y=y,
         metrics=metrics, classes=classes, classifier=classifier, results=results, choices=choices,
         refit_all=refit_all, n_features=_n_features(X),
-        grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom)
+        grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom,
+        trusted=trusted)
     return Assessment(payload.model_copy(update={"final": chosen}) if final else payload)
 
 
