@@ -93,15 +93,19 @@ def identify(family: str, points, *, warn: bool = True) -> list[tuple[dict[str, 
     count: dict[str, int] = {}
     for label in labels.values():
         count[label] = count.get(label, 0) + 1
-    return [(params, _unique(labels[key], key, count[labels[key]] > 1 or _cut_short(params)), key)
+    return [(params, _unique(labels[key], key, count[labels[key]] > 1 or cut_short(params)), key)
             for key, params in found.items()]
 
 
 def _unique(label: str, key: str, needs_digest: bool) -> str:
-    return f"{label} #{key[:DIGEST_SHOWN]}" if needs_digest else label
+    return label_with_digest(label, key) if needs_digest else label
 
 
-def _cut_short(params: dict[str, Any]) -> bool:
+def label_with_digest(label: str, key: str) -> str:
+    return f"{label} #{key[:DIGEST_SHOWN]}"
+
+
+def cut_short(params: dict[str, Any]) -> bool:
     """Whether the label shows an object by a repr cut short (a long estimator's, a large array's)."""
     return any(not isinstance(value, str) and _TRUNCATED in repr(value) for value in params.values())
 

@@ -43,18 +43,26 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
     Parameters
     ----------
     space : dict or search object
-        ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them, or a
-        ``GridSearchCV`` / ``RandomizedSearchCV`` (expanded into its candidates and run in the one
-        pool), or any other ``BaseSearchCV`` or one with a callable ``refit`` (fitted whole on each
-        outer training set).
-    outer, inner : int or splitter
-        Resolved with ``check_cv``: stratified for classifiers. A search object's own ``cv`` is its
-        inner splitter.
+        ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them;
+        ``{family: (estimator, distributions, n_iter, random_state)}`` for random search (``n_iter``
+        candidates drawn once by ``ParameterSampler`` from lists and ``scipy.stats`` distributions, the
+        same in every outer fold, recorded as the configurations; ``random_state`` may be left out, and
+        then they are drawn afresh on each call); see ``foldwise.runner.space``. Or a search object, bare
+        or as ``{family: search}``: a ``GridSearchCV`` / ``RandomizedSearchCV`` is expanded into its
+        candidates and run in the one pool, any other ``BaseSearchCV`` or one with a callable ``refit``
+        is fitted whole on each outer training set. A search object's ``cv``, ``scoring`` and ``refit``
+        are used as they are (``foldwise.runner.searches``).
+    outer : int or splitter
+        Resolved with ``check_cv``: stratified for classifiers.
+    inner : int, splitter or None
+        As ``outer``; None is 5 folds, or a search object's own ``cv``. Beside a search object an
+        ``inner`` other than its ``cv`` is refused (the search's setting wins; change it there).
     scoring : str, list of str, dict, scorer object or callable, optional
         As ``GridSearchCV`` takes it: a scorer name, a list of names, a dict ``{name: scorer}``, a
         scorer object (``make_scorer(fbeta_score, beta=2)``) or a callable ``(estimator, X, y)``, named
         "score". The first metric (or a search object's ``refit`` metric) selects. Defaults to
-        accuracy (classifiers) or r2.
+        accuracy (classifiers) or r2, or a search object's own scoring; beside a search object, a
+        ``scoring`` whose first metric is not the one the search selects by is refused.
     groups : array-like, optional
         Group labels, passed to the outer splitter and, restricted to the outer training rows, to
         the inner one (an int ``inner`` resolves to an ungrouped splitter: pass e.g. ``GroupKFold``
