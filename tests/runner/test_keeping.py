@@ -110,3 +110,17 @@ def test_scikit_learn_models_are_kept_without_any_warning(cancer):
                              {"tree__max_depth": [1, 2]})}
     assessment = nested_cv(space, X, y, outer=2, inner=2, progress=False, keep_models=True)  # warnings fail the suite
     assert len(assessment.payload.models) == 2
+
+
+def test_the_trust_is_content_and_its_absence_keeps_the_digest_documents_had(cancer):
+    from foldwise.identity import content_digest
+    from foldwise.payload import AssessmentPayload
+
+    X, y = cancer
+    payload = nested_cv({"tree": (DecisionTreeClassifier(random_state=0), {"max_depth": [1, 2]})}, X, y, outer=2,
+                        inner=2, progress=False).payload
+    document = payload.model_dump(mode="json")
+    without = {**document, "design": {k: v for k, v in document["design"].items() if k != "trusted"}}
+    trusting = {**document, "design": {**document["design"], "trusted": ["xgboost"]}}
+    digests = [content_digest(AssessmentPayload.model_validate(doc)) for doc in (document, without, trusting)]
+    assert digests[0] == digests[1] != digests[2]
