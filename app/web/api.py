@@ -31,6 +31,11 @@ from foldwise.web.pages.index import index_context
 from foldwise.web.push import OPENAPI, PushRoute, stored
 from foldwise.web.serialise import records, to_csv
 
+# Beside a CSV download, where the file itself has no room for it: how the score column is oriented.
+SCORE_SIGN_HEADER = "x-foldwise-score-sign"
+SCORE_SIGN_NOTE = ("scikit-learn: greater is better; a metric named neg_* is the negated loss "
+                   "(neg_root_mean_squared_error = -RMSE)")
+
 router = APIRouter(prefix="/api")
 
 
@@ -71,7 +76,8 @@ def one(request: Request, uuid: str, metric: str | None = None):
 
 @router.get("/assessments/{uuid}/scores", response_model=list[InnerScoreRow] | list[OuterScoreRow],
             responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
-                             "description": "the scores, as JSON rows or (format=csv) a CSV download"},
+                             "description": "the scores, as JSON rows or (format=csv) a CSV download, in "
+                                            "scikit-learn's orientation: a neg_* metric is the negated loss"},
                        **error_responses(404, 422)})
 def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "outer",
            format: Literal["json", "csv"] = Query("json")):
@@ -80,7 +86,8 @@ def scores(request: Request, uuid: str, level: Literal["inner", "outer"] = "oute
     frame = inner_scores_for(engine, uuid) if level == "inner" else outer_scores_for(engine, uuid)
     if format == "csv":
         return Response(to_csv(frame), media_type="text/csv", headers={
-            "content-disposition": f'attachment; filename="{uuid}-{level}-scores.csv"'})
+            "content-disposition": f'attachment; filename="{uuid}-{level}-scores.csv"',
+            SCORE_SIGN_HEADER: SCORE_SIGN_NOTE})
     return records(frame)
 
 

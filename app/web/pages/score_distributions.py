@@ -16,7 +16,7 @@ from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import metric_or_422, record_or_404
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -93,7 +93,7 @@ def score_distributions_context(engine, uuid: str, *, metric: str | None, by: st
         record=record, metric=metric, metrics=record.design.metrics, by=by, sort=sort, families=names,
         selected=selected, colours=colours, overall=overall, family_groups=family_groups,
         config_groups=config_groups, message=message,
-        distributions_figure=distribution_figure(shown, colours, metric=metric))
+        distributions_figure=distribution_figure(shown, colours, family_symbols(names), metric=metric))
 
 
 def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
