@@ -17,7 +17,7 @@ from foldwise.web.charts.base import chart_style
 from foldwise.web.compression import Compressed
 from foldwise.web.formatting import CAUTION, FILTERS
 from foldwise.web.methods import MethodTable
-from foldwise.web.metric_display import API_ORIENTATION, metric_display
+from foldwise.web.metric_display import API_ORIENTATION, displays_json, metric_display
 from foldwise.web.openapi import openapi_of
 from foldwise.web.pages import (
     assessment_detail,
@@ -52,7 +52,8 @@ def create_app(settings: Settings) -> FastAPI:
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.filters.update(FILTERS)
     templates.env.globals.update(caution=CAUTION, version=foldwise.__version__, static_url=static_url,
-                                 chart_style=chart_style(), metric_display=metric_display)
+                                 chart_style=chart_style(), metric_display=metric_display,
+                                 metric_displays=displays_json)
     app.state.templates = templates
 
     # Static files and plotly.js under /static/<digest>/<name>, gzipped once and cached for a year.

@@ -16,6 +16,7 @@ orientation (what scikit-learn and a script expect); every page and chart shows 
 from __future__ import annotations
 
 import functools
+import json
 import math
 from dataclasses import dataclass
 
@@ -101,3 +102,9 @@ def metric_display(metric: str | None) -> MetricDisplay:
         name = _LOSS_NAMES.get(metric, metric.removeprefix(NEGATED_PREFIX).replace("_", " "))
         return MetricDisplay(metric=metric, name=name, negated=True)
     return MetricDisplay(metric=metric, name=metric, negated=False)
+
+
+def displays_json(metrics: list[str]) -> str:
+    """How each of ``metrics`` reads, as JSON for the charts and numbers static/ensemble.js draws."""
+    return json.dumps({metric: {"name": shown.name, "negated": shown.negated, "label": shown.label}
+                       for metric, shown in ((metric, metric_display(metric)) for metric in metrics)})
