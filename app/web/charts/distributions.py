@@ -15,7 +15,7 @@ from foldwise.web.charts.base import MUTED, figure_json, styled
 from foldwise.web.formatting import params_text
 from foldwise.web.metric_display import metric_display
 
-ROW_HEIGHT, CHROME = 34, 110  # pixels per row, and for the axis, its title and the margins
+ROW_HEIGHT, CHROME = 40, 110  # pixels per row, and for the axis, its title and the margins
 _LANES = 0.5  # the points of a row spread over this share of its height, one lane per outer fold
 _LABEL_LIMIT = 56
 
