@@ -19,6 +19,8 @@ from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
+from foldwise.store.lookup import AssessmentNotFound
+
 log = logging.getLogger("foldwise.web")
 
 # What kind of refusal a status is, for the ``type`` of an entry that a handler did not name.
@@ -94,6 +96,11 @@ def install(app: FastAPI, templates) -> None:
         if _wants_page(request):
             return page(request, 422, "; ".join(_located(item) for item in detail))
         return JSONResponse({"detail": detail}, status_code=422)
+
+    @app.exception_handler(AssessmentNotFound)
+    async def gone(request: Request, error: AssessmentNotFound):
+        # An assessment deleted between finding it and reading it, wherever a read noticed: a 404.
+        return await http_error(request, refusal(404, str(error), loc=["path", "uuid"]))
 
     @app.exception_handler(StarletteHTTPException)
     async def http_error(request: Request, error: StarletteHTTPException):

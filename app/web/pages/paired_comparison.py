@@ -10,13 +10,13 @@ from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
-from foldwise.store import AssessmentRecord, fold_sizes_for, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
 from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import Rope
 from foldwise.web.serialise import plain
@@ -51,12 +51,12 @@ class PairedComparisonContext:
     posterior_figure: str
 
 
-def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None, metric: str | None,
+def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str | None, metric: str | None,
                               rope: float) -> PairedComparisonContext:
-    record = record_or_404(engine, uuid)
+    record = reader.record
     metric = metric_or_422(record, metric)
     # Every view below reads this one metric, and only the fold winners' rows and those of the two sides.
-    outer = outer_scores_for(engine, uuid, metric=metric, winners="either", configs=[v for v in (a, b) if v])
+    outer = reader.outer(metric=metric, winners="either", configs=[v for v in (a, b) if v])
     families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
     configurations = [Candidate(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")
@@ -64,7 +64,7 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
     a, b = _defaults(outer, metric, [family.value for family in families], record.n_folds, a or None, b or None)
     first, second = (_candidate(record, families, configurations, value, side)
                      for value, side in ((a, "a"), (b, "b")))
-    sizes = fold_sizes_for(engine, uuid)
+    sizes = reader.fold_sizes()
     scores_a, scores_b = (_scores(outer, metric, side, sizes.index) for side in (first, second))
     try:
         result = compare_paired(scores_a.to_numpy(), scores_b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
@@ -86,18 +86,18 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
 
 @router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str | None = None,
+def paired_comparison(request: Request, reader: ReaderDep, a: str | None = None, b: str | None = None,
                       metric: str | None = None, rope: Rope = 0.01):
-    context = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
+    context = paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope)
     return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
 
 
 @router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
             responses=error_responses(404, 422))
-def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b: str | None = None,
+def paired_comparison_json(reader: ReaderDep, a: str | None = None, b: str | None = None,
                            metric: str | None = None, rope: Rope = 0.01):
     """Paired tests of a − b over every outer fold of every repeat (a, b: families or configuration ids)."""
-    page = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
+    page = paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope)
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
             "a": page.a.value, "a_kind": page.a.kind, "a_label": page.a.label,
             "b": page.b.value, "b_kind": page.b.kind, "b_label": page.b.label,
