@@ -37,19 +37,21 @@ def push_assessment(request: Request, payload: AssessmentPayload, background: Ba
     return stored(request, payload, background)
 
 
-router.add_api_route("/assessments", push_assessment, methods=["POST"], status_code=201, response_model=Pushed,
+router.add_api_route("/assessments", push_assessment, name="push_assessment", methods=["POST"], status_code=201,
+                     response_model=Pushed,
                      responses={200: {"description": "this uuid is stored already, with the same content",
                                       "model": Pushed}, **error_responses(409, 422)},
                      route_class_override=PushRoute, openapi_extra=OPENAPI)
 
 
-@router.get("/assessments", response_model=list[AssessmentRow])
-def list_all(store: StoreDep, dataset: str | None = None, name: str | None = None):
+@router.get("/assessments", name="index_json", response_model=list[AssessmentRow])
+def index_json(store: StoreDep, dataset: str | None = None, name: str | None = None):
     return index_context(store, dataset=dataset, name=name).assessments
 
 
-@router.get("/assessments/{uuid}", response_model=AssessmentAnswer, responses=error_responses(404, 422))
-def one(reader: ReaderDep, metric: str | None = None):
+@router.get("/assessments/{uuid}", name="assessment_detail_json", response_model=AssessmentAnswer,
+            responses=error_responses(404, 422))
+def assessment_detail_json(reader: ReaderDep, metric: str | None = None):
     page = assessment_context(reader, metric=metric)
     record = page.record
     return {
@@ -63,11 +65,12 @@ def one(reader: ReaderDep, metric: str | None = None):
     }
 
 
-@router.get("/assessments/{uuid}/scores", response_model=list[InnerScoreRow] | list[OuterScoreRow],
+@router.get("/assessments/{uuid}/scores", name="assessment_scores",
+            response_model=list[InnerScoreRow] | list[OuterScoreRow],
             responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
                              "description": "the scores, as JSON rows or (format=csv) a CSV download"},
                        **error_responses(404, 422)})
-def scores(reader: ReaderDep, level: Literal["inner", "outer"] = "outer",
+def assessment_scores(reader: ReaderDep, level: Literal["inner", "outer"] = "outer",
            format: Literal["json", "csv"] = Query("json")):
     frame = reader.inner() if level == "inner" else reader.outer()
     if format == "csv":
@@ -76,8 +79,9 @@ def scores(reader: ReaderDep, level: Literal["inner", "outer"] = "outer",
     return records(frame)
 
 
-@router.get("/assessments/{uuid}/winners", response_model=list[WinnerRow], responses=error_responses(404, 422))
-def winners(reader: ReaderDep, metric: str | None = None, level: Literal["overall", "family"] = "overall"):
+@router.get("/assessments/{uuid}/winners", name="assessment_winners", response_model=list[WinnerRow],
+            responses=error_responses(404, 422))
+def assessment_winners(reader: ReaderDep, metric: str | None = None, level: Literal["overall", "family"] = "overall"):
     """Fold winners with inner mean ± sd, outer score and optimism (inner mean − outer score)."""
     return records(reader.winners(kind=level, metric=metric_or_422(reader.record, metric)))
 

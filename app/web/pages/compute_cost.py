@@ -120,7 +120,7 @@ def compute_cost(request: Request, reader: ReaderDep, outer: str | None = None, 
     return request.app.state.templates.TemplateResponse(request, "compute_cost.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/cost", name="api_compute_cost", response_model=context_model(CostContext),
+@router.get("/api/assessments/{uuid}/cost", name="compute_cost_json", response_model=context_model(CostContext),
             responses=error_responses(404, 422))
 def compute_cost_json(reader: ReaderDep, outer: str | None = None, inner: str | None = None,
                       repeats: str | None = None, configs: str | None = None, cores: str | None = None):

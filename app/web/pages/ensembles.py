@@ -100,9 +100,9 @@ def listed(request: Request, reader: ReaderDep, format: str = Query("json", patt
     return [_ensemble_json(request, ensemble) for ensemble in reader.ensembles()]
 
 
-@router.get("/api/ensembles/{eid}", name="ensemble_json", response_model=EnsembleWithEstimate,
+@router.get("/api/ensembles/{eid}", name="ensemble_detail_json", response_model=EnsembleWithEstimate,
             responses=error_responses(404))
-def one(request: Request, read: EnsembleDep):
+def ensemble_detail_json(request: Request, read: EnsembleDep):
     """A saved ensemble with its estimate recomputed from the stored predictions."""
     page = ensemble_detail_context(read)
     return _ensemble_json(request, page.ensemble) | {"estimate": page.estimate,

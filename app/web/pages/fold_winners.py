@@ -113,7 +113,7 @@ def fold_winners(request: Request, reader: ReaderDep, metric: str | None = None)
     return request.app.state.templates.TemplateResponse(request, "fold_winners.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/fold-winners", name="api_fold_winners",
+@router.get("/api/assessments/{uuid}/fold-winners", name="fold_winners_json",
             response_model=context_model(FoldWinnersContext),
             responses=error_responses(404, 422))
 def fold_winners_json(reader: ReaderDep, metric: str | None = None):

@@ -112,7 +112,7 @@ def inner_detail(request: Request, reader: ReaderDep, repeat: FoldNumber = 0, ou
     return request.app.state.templates.TemplateResponse(request, "inner_detail.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/inner", name="api_inner_detail", response_model=context_model(InnerDetailContext),
+@router.get("/api/assessments/{uuid}/inner", name="inner_detail_json", response_model=context_model(InnerDetailContext),
             responses=error_responses(404, 422))
 def inner_detail_json(reader: ReaderDep, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                       metric: str | None = None):

@@ -116,7 +116,7 @@ def optimism(request: Request, reader: ReaderDep, metric: str | None = None,
     return request.app.state.templates.TemplateResponse(request, "optimism.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/optimism", name="api_optimism", response_model=context_model(OptimismContext),
+@router.get("/api/assessments/{uuid}/optimism", name="optimism_json", response_model=context_model(OptimismContext),
             responses=error_responses(404, 422))
 def optimism_json(reader: ReaderDep, metric: str | None = None,
                   level: Literal["overall", "family"] = "overall"):

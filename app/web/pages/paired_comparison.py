@@ -27,7 +27,9 @@ _LISTED = 12  # configuration ids named in an error message before "and N more"
 
 
 @dataclass(frozen=True)
-class Candidate:
+class PairedSide:
+    """One side of the comparison: a family (its fold winners) or one configuration."""
+
     value: str  # as written in the URL: a family name or a configuration id
     kind: str   # "family" (its fold winners' outer scores) or "configuration" (its own outer scores)
     family: str
@@ -40,10 +42,10 @@ class PairedComparisonContext:
     metric: str
     metrics: list[str]
     rope: float
-    a: Candidate
-    b: Candidate
-    families: list[Candidate]
-    configurations: list[Candidate]  # empty unless every configuration was refit on every outer fold
+    a: PairedSide
+    b: PairedSide
+    families: list[PairedSide]
+    configurations: list[PairedSide]  # empty unless every configuration was refit on every outer fold
     colours: dict[str, str]
     result: dict  # compare_paired's output, JSON-safe
     folds: list[dict]  # repeat, outer_fold, a, b, diff
@@ -57,8 +59,8 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
     metric = metric_or_422(record, metric)
     # Every view below reads this one metric, and only the fold winners' rows and those of the two sides.
     outer = reader.outer(metric=metric, winners="either", configs=[v for v in (a, b) if v])
-    families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
-    configurations = [Candidate(config.id, "configuration", config.family,
+    families = [PairedSide(family.name, "family", family.name, family.name) for family in record.families]
+    configurations = [PairedSide(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")
                       for config in record.configurations] if record.design.refit_all else []
     a, b = _defaults(outer, metric, [family.value for family in families], record.n_folds, a or None, b or None)
@@ -117,8 +119,8 @@ def _defaults(outer: pd.DataFrame, metric: str, families: list[str], n_folds: in
     return a, b
 
 
-def _candidate(record: AssessmentRecord, families: list[Candidate], configurations: list[Candidate],
-               value: str, side: str) -> Candidate:
+def _candidate(record: AssessmentRecord, families: list[PairedSide], configurations: list[PairedSide],
+               value: str, side: str) -> PairedSide:
     for candidate in [*families, *configurations]:
         if candidate.value == value:
             return candidate
@@ -136,7 +138,7 @@ def _candidate(record: AssessmentRecord, families: list[Candidate], configuratio
                              f"choose one of the {known}")
 
 
-def _scores(outer: pd.DataFrame, metric: str, candidate: Candidate, folds: pd.Index) -> pd.Series:
+def _scores(outer: pd.DataFrame, metric: str, candidate: PairedSide, folds: pd.Index) -> pd.Series:
     if candidate.kind == "family":
         return family_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]
     return config_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]

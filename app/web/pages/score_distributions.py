@@ -142,7 +142,7 @@ def score_distributions(request: Request, reader: ReaderDep, metric: str | None 
     return templates.TemplateResponse(request, "score_distributions.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/distributions", name="api_score_distributions",
+@router.get("/api/assessments/{uuid}/distributions", name="score_distributions_json",
             response_model=context_model(DistributionsContext),
             responses=error_responses(404, 422))
 def score_distributions_json(reader: ReaderDep, metric: str | None = None, by: By = "family",
