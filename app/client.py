@@ -94,7 +94,7 @@ def _send(parts: list[bytes], url: str, *, content_type: str = "application/json
           timeout) -> str:
     """POST the body made of ``parts``; the outcome, or the last transport error once retries ran out."""
     headers = {"content-type": content_type, "content-length": str(sum(map(len, parts)))}
-    token = token or _write_key()
+    token = token or write_key()
     if token:
         headers["authorization"] = f"Bearer {token}"
     endpoint = url.rstrip("/") + "/api/assessments"
@@ -141,7 +141,7 @@ def _pieces(parts: list[bytes]):
         yield b"".join(held)
 
 
-def _write_key() -> str | None:
+def write_key() -> str | None:
     """$FOLDWISE_KEY, else the write key in this machine's key file (a server on this machine made it)."""
     if os.environ.get("FOLDWISE_KEY"):
         return os.environ["FOLDWISE_KEY"]

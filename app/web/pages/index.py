@@ -10,6 +10,7 @@ from fastapi.responses import HTMLResponse
 from foldwise.store import ensemble_counts, list_assessments
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
+from foldwise.web.pages.live_runs import running_summaries
 from foldwise.web.serialise import records
 
 router = APIRouter()
@@ -37,4 +38,5 @@ def index_context(engine, *, dataset: str | None, name: str | None) -> IndexCont
             responses=error_responses(422, html=True))
 def index(request: Request, dataset: str | None = None, name: str | None = None):
     context = index_context(request.app.state.engine, dataset=dataset, name=name)
-    return request.app.state.templates.TemplateResponse(request, "index.html", {"page": context})
+    return request.app.state.templates.TemplateResponse(request, "index.html", {
+        "page": context, "running": running_summaries(request)})
