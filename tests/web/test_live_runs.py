@@ -171,6 +171,7 @@ def test_a_real_run_is_listed_running_fills_in_fold_by_fold_and_is_replaced_by_i
     finally:
         if child.poll() is None:
             child.kill()
+            child.wait()
     assert {1, 2} <= seen_folds  # the page filled in one fold at a time, not all at the end
     uuid = out.read_text()
     assert uuid == running["uuid"]  # the assessment is pushed under the run's uuid
@@ -228,5 +229,6 @@ def test_a_run_whose_server_was_away_carries_on_and_catches_it_up(tmp_path, serv
     finally:
         if child.poll() is None:
             child.kill()
+            child.wait()
         if server is not None:
             server.stop()
