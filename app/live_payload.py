@@ -18,6 +18,7 @@ from pydantic import Field, FiniteFloat, field_validator, model_validator
 from foldwise.payload import MAX_COUNT, MetricName, Name, Text, _Strict
 
 LIVE_SCHEMA_VERSION = 1
+MAX_FOLDS = 10_000  # outer folds over all repeats: a page lists each of them
 Score = FiniteFloat | None  # null where the fit or its scoring failed
 
 
@@ -117,6 +118,9 @@ def _problems(report: LiveReport):
         yield f"fits_done ({report.fits_done}) exceeds fits_total ({report.fits_total})"
     if (report.state == "stopped") != (report.reason is not None):
         yield "reason: give one exactly when state is 'stopped'"
+    if report.n_folds > MAX_FOLDS:
+        yield (f"n_repeats × n_outer_folds is {report.n_repeats} × {report.n_outer_folds} = {report.n_folds}; a live "
+               f"view shows at most {MAX_FOLDS} outer folds")
     if len(report.folds) > report.n_folds:
         yield f"folds: {len(report.folds)} completed folds, but the design has {report.n_folds}"
     seen = set()
