@@ -12,7 +12,7 @@ import json
 from dataclasses import dataclass
 from datetime import UTC, datetime
 
-from sqlalchemy import Engine, delete, func, insert, select, update
+from sqlalchemy import Engine, delete, insert, select, update
 from sqlalchemy.exc import IntegrityError
 
 from foldwise.live_payload import LiveReport
@@ -53,14 +53,12 @@ def record_live_report(engine: Engine, uuid: str, report: LiveReport, *, receive
     Raises ``LiveConflict`` when the run reported another design or grid before.
     """
     uuid = uuid_text(uuid)
-    for attempt in range(2):
-        try:
-            with write_transaction(engine) as connection:
-                return _record(connection, uuid, report, _utc(received_at))
-        except IntegrityError:  # another request created the run between our look and our insert
-            if attempt:
-                raise
-    raise AssertionError("unreachable")
+    try:
+        with write_transaction(engine) as connection:
+            return _record(connection, uuid, report, _utc(received_at))
+    except IntegrityError:  # another request created the run between our look and our insert: now it is there
+        with write_transaction(engine) as connection:
+            return _record(connection, uuid, report, _utc(received_at))
 
 
 def _record(connection, uuid: str, report: LiveReport, received_at: datetime) -> str:
@@ -111,11 +109,6 @@ def delete_live_run(engine: Engine, uuid: str) -> bool:
     with write_transaction(engine) as connection:
         result = connection.execute(delete(tables.live_runs).where(tables.live_runs.c.uuid == uuid_text(uuid)))
     return result.rowcount > 0
-
-
-def count_live_runs(engine: Engine) -> int:
-    with engine.connect() as connection:
-        return connection.execute(select(func.count()).select_from(tables.live_runs)).scalar_one()
 
 
 def _runs(connection, condition) -> list[LiveRun]:
