@@ -12,7 +12,7 @@ import json
 from dataclasses import dataclass
 from datetime import UTC, datetime
 
-from sqlalchemy import Engine, delete, insert, select, update
+from sqlalchemy import Connection, Engine, delete, insert, select, update
 from sqlalchemy.exc import IntegrityError
 
 from foldwise.live_payload import LiveReport
@@ -90,18 +90,20 @@ def _record(connection, uuid: str, report: LiveReport, received_at: datetime) ->
     return outcome
 
 
-def live_run_for(engine: Engine, uuid: str) -> LiveRun | None:
-    """The run reported under ``uuid`` with its completed folds; None when no run reported under it."""
-    runs = tables.live_runs
-    with engine.connect() as connection:
-        found = _runs(connection, runs.c.uuid == uuid_text(uuid))
+def live_run_in(connection: Connection, uuid: str) -> LiveRun | None:
+    """The run reported under ``uuid`` with its completed folds; None when no run reported under it (or
+    ``uuid`` is not a uuid). Read through the request's connection (``StoreReader.connection``)."""
+    try:
+        key = uuid_text(uuid)
+    except ValueError:
+        return None
+    found = _runs(connection, tables.live_runs.c.uuid == key)
     return found[0] if found else None
 
 
-def live_runs_in_progress(engine: Engine) -> list[LiveRun]:
+def live_runs_in_progress(connection: Connection) -> list[LiveRun]:
     """Every run whose assessment is not stored, the most recently heard from first."""
-    with engine.connect() as connection:
-        return _runs(connection, tables.assessments.c.id.is_(None))
+    return _runs(connection, tables.assessments.c.id.is_(None))
 
 
 def delete_live_run(engine: Engine, uuid: str) -> bool:

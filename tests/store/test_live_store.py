@@ -9,7 +9,7 @@ from uuid import uuid4
 import pytest
 from made_live_reports import made_report
 
-from foldwise.store import delete_assessment, insert_assessment
+from foldwise.store import StoreReader, delete_assessment, insert_assessment
 from foldwise.store.live import (
     CREATED,
     FINISHED,
@@ -17,12 +17,22 @@ from foldwise.store.live import (
     UPDATED,
     LiveConflict,
     delete_live_run,
-    live_run_for,
-    live_runs_in_progress,
+    live_run_in,
     record_live_report,
 )
+from foldwise.store.live import live_runs_in_progress as _in_progress
 
 NOW = datetime(2026, 3, 4, 10, 5)
+
+
+def live_run_for(engine, uuid):
+    with StoreReader.open(engine) as store:  # as a request reads it: one connection, one snapshot
+        return live_run_in(store.connection, uuid)
+
+
+def live_runs_in_progress(engine):
+    with StoreReader.open(engine) as store:
+        return _in_progress(store.connection)
 
 
 def test_a_report_reads_back_as_sent_with_its_folds(engine):

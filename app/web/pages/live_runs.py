@@ -19,10 +19,12 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse, RedirectResponse
 
 from foldwise.definitions import nested_estimate
-from foldwise.store.live import LiveRun, live_run_for, live_runs_in_progress
+from foldwise.store import StoreReader
+from foldwise.store.live import LiveRun, live_run_in, live_runs_in_progress
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.formatting import design_text
+from foldwise.web.lookup import StoreDep
 
 router = APIRouter()
 POLL_SECONDS = 2.0  # how often an open page asks for the run's state
@@ -97,14 +99,14 @@ class LiveRunContext:
     poll_seconds: float
 
 
-def running_summaries(request: Request) -> list[LiveRunSummary]:
+def running_summaries(request: Request, store: StoreReader) -> list[LiveRunSummary]:
     """Every run whose assessment is not stored yet, the most recently heard from first."""
     now = _now()
-    return [_summary(request, run, now) for run in live_runs_in_progress(request.app.state.engine)]
+    return [_summary(request, run, now) for run in live_runs_in_progress(store.connection)]
 
 
-def live_run_context(request: Request, uuid: str) -> LiveRunContext:
-    run = _run_or_404(request, uuid)
+def live_run_context(request: Request, store: StoreReader, uuid: str) -> LiveRunContext:
+    run = _run_or_404(store, uuid)
     report = run.report
     done = {(fold.repeat, fold.outer_fold): fold for fold in report.folds}
     configs = report.configurations
@@ -224,11 +226,8 @@ def _now() -> datetime:
     return datetime.now(UTC).replace(tzinfo=None)
 
 
-def _run_or_404(request: Request, uuid: str) -> LiveRun:
-    try:
-        run = live_run_for(request.app.state.engine, uuid)
-    except ValueError:  # not a uuid
-        run = None
+def _run_or_404(store: StoreReader, uuid: str) -> LiveRun:
+    run = live_run_in(store.connection, uuid)
     if run is None:
         raise refusal(404, f"no running assessment {uuid!r} in this store", loc=["path", "uuid"])
     return run
@@ -237,23 +236,23 @@ def _run_or_404(request: Request, uuid: str) -> LiveRun:
 @router.get("/live/{uuid}", name="live_run", response_class=HTMLResponse,
             responses={303: {"description": "the run finished: its assessment's page"},
                        **error_responses(404, html=True)})
-def live_run(request: Request, uuid: str):
-    context = live_run_context(request, uuid)
+def live_run(request: Request, store: StoreDep, uuid: str):
+    context = live_run_context(request, store, uuid)
     if context.run.assessment_url is not None:
         return RedirectResponse(context.run.assessment_url, status_code=303)
     return request.app.state.templates.TemplateResponse(request, "live_run.html", {"page": context})
 
 
 @router.get("/api/live", name="live_runs_json", response_model=list[context_model(LiveRunSummary)])
-def live_runs_json(request: Request):
+def live_runs_json(request: Request, store: StoreDep):
     """Every running assessment (not yet stored): progress, pace, expected end and status."""
-    return [context_json(summary) for summary in running_summaries(request)]
+    return [context_json(summary) for summary in running_summaries(request, store)]
 
 
 @router.get("/api/live/{uuid}", name="live_run_json", response_model=context_model(LiveRunContext),
             responses=error_responses(404))
-def live_run_json(request: Request, uuid: str):
+def live_run_json(request: Request, store: StoreDep, uuid: str):
     """A run's progress, its completed folds and the partial nested estimate; a finished run names its
     assessment (``run.assessment_url``)."""
-    return context_json(live_run_context(request, uuid))
+    return context_json(live_run_context(request, store, uuid))
 
