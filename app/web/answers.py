@@ -133,6 +133,10 @@ class PairedComparison(_Answer):
     n: int
     n_missing: int
     mean_diff: Number
+    diff_low: Number = Field(description="corrected interval of the mean difference a − b (Nadeau and Bengio's "
+                                         "variance, Student t with n − 1 df): low end")
+    diff_high: Number = Field(description="the same interval's high end")
+    diff_level: float = Field(description="the interval's level")
     corrected_t: Number
     corrected_p: Number
     bayes_a: Number
@@ -147,10 +151,12 @@ class Ranking(_Answer):
     metric: str
     friedman_stat: Number
     friedman_p: Number
-    critical_difference: Number
+    critical_difference: Number = Field(description="Nemenyi's critical difference; null when Friedman's test "
+                                                    "cannot run (two families, or every block tied)")
     n_blocks: int
     n_missing: int
     note: str | None
+    verdict: str = Field(description="the ranking in one sentence")
     mean_ranks: dict[str, Number]
     families: list[dict[str, Any]]
     blocks: list[dict[str, Any]]
