@@ -27,8 +27,10 @@ from foldwise.store.queries import (
     winners_for,
 )
 from foldwise.store.restore import (
+    StoredFinal,
     StoredPrediction,
     final_model_for,
+    final_selection_for,
     fold_targets_for,
     load_payload,
     outer_folds_for,
@@ -42,6 +44,7 @@ __all__ = [
     "UuidConflict",
     "EnsembleRecord",
     "StoredModel",
+    "StoredFinal",
     "StoredPrediction",
     "checkpoint",
     "db_url_from",
@@ -66,6 +69,7 @@ __all__ = [
     "list_assessments",
     "load_payload",
     "final_model_for",
+    "final_selection_for",
     "make_engine",
     "outer_folds_for",
     "outer_scores_for",

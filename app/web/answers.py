@@ -74,6 +74,12 @@ class AssessmentAnswer(_Answer):
     family_summary: list[dict[str, Any]]
     n_failures: int
     failures: list[dict[str, Any]] = Field(description="the first failed fits; n_failures counts them all")
+    headline: dict[str, Any] = Field(description="on `metric`: the nested estimate with its headline interval, the "
+                                                 "fold winners' mean best inner score (what a search without an outer "
+                                                 "loop reports) and the mean optimism between them")
+    shipping: dict[str, Any] = Field(description="on the selection metric: the final choice on all rows beside the "
+                                                 "fold winners, and the ensemble of the fold winners as the "
+                                                 "alternative, compared with the selection on the same outer folds")
 
 
 class _ScoreRow(_Answer):

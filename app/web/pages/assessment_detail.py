@@ -1,4 +1,5 @@
-"""One assessment: its design, nested estimate, each family's outer scores and the fold winners."""
+"""One assessment: its headline (the nested estimate with its interval beside the non-nested best inner
+score), design, each family's outer scores, the fold winners and what to ship."""
 
 from __future__ import annotations
 
@@ -15,14 +16,18 @@ from foldwise.store import (
     ensembles_for,
     failures_for,
     family_winners_for,
+    final_selection_for,
+    fold_sizes_for,
     outer_scores_for,
     winners_for,
 )
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
+from foldwise.web.headline import Headline, headline
 from foldwise.web.lookup import metric_or_422, record_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
+from foldwise.web.shipping import Shipping, shipping
 
 router = APIRouter()
 
@@ -49,6 +54,8 @@ class AssessmentContext:
     failures: list[dict]
     n_failures: int
     ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
+    headline: Headline  # nested estimate and interval beside the non-nested best inner score, on `metric`
+    shipping: Shipping  # the final choice beside the fold winners, and the ensemble of them (selection metric)
 
 
 def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentContext:
@@ -74,13 +81,17 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
                 "n_failed": nested.n_failed, "described": nested.described}
     failures = failures_for(engine, uuid)
     design, families = record.design, [family.name for family in record.families]
+    summary = frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)
+    final = final_selection_for(engine, uuid)
+    selecting = overall if metric == design.selection_metric else winners_for(engine, uuid)
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
-        metric=metric, metrics=metrics, estimate=estimate,
-        summary=records(frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)),
-        families=families,
+        metric=metric, metrics=metrics, estimate=estimate, summary=records(summary), families=families,
         colours=family_colours(families), folds=folds, failures=records(failures.head(20)),
-        n_failures=len(failures), ensembles=ensembles_for(engine, uuid))
+        n_failures=len(failures), ensembles=ensembles_for(engine, uuid),
+        headline=headline(record, metric=metric, winners=overall, sizes=fold_sizes_for(engine, uuid),
+                          summary=summary, family_outer=outer, final=final),
+        shipping=shipping(engine, record, selecting, final))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
