@@ -62,7 +62,7 @@ bench: $(VENV)/.installed-test
 	@status=0; for script in $(filter-out %/bench_coverage.py,$(wildcard tests/benchmarks/bench_*.py)); do \
 	  $(PY) $$script || status=1; done; exit $$status
 
-# The coverage study of the intervals beside the nested estimate (tests/benchmarks/bench_coverage.py):
+# The coverage simulation of the intervals beside the nested estimate (tests/benchmarks/bench_coverage.py):
 # about an hour on 2 cores; replications are cached under .foldwise/coverage/, so it may be stopped and
 # run again to continue (e.g. COVERAGE_ARGS="--minutes 30"). Fails when the headline interval misses its targets.
 coverage: $(VENV)/.installed-test

@@ -18,7 +18,7 @@ Failed fits are NaN. The rules for them, in one place:
 The headline interval beside the nested estimate is, by one stated rule, the corrected resampled t
 interval (``foldwise.stats.intervals.corrected_t_interval``: Nadeau and Bengio, 2003; Bouckaert and
 Frank, 2004): centred on the nested estimate itself, free (no extra fit), valid with repeated outer loops,
-and it covered at its nominal level in every setting of the coverage study (``make coverage``).
+and it covered at its nominal level in every setting of the coverage simulation (``make coverage``).
 
 This module imports only ``foldwise.stats`` (pure functions), so every layer may use it.
 """

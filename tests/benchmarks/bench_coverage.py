@@ -1,6 +1,6 @@
 """Coverage of the intervals beside the nested estimate, by simulation against a known truth (`make coverage`).
 
-Four invented data-generating processes (coverage_study.py: a logistic and a nonlinear
+Four invented data-generating processes (coverage_simulation.py: a logistic and a nonlinear
 classification, a sparse and a nonlinear regression) at n = 200 and 1,000 rows; each replication
 runs ``foldwise.nested_cv`` with 3 repeats × 5 outer × 5 inner folds, and its first repeat alone is
 the design without repeats on the same data. The truth is the score, on 50,000 independent rows,
@@ -10,7 +10,7 @@ errors, the mean width of the 95% interval and the bias of the method's estimate
 (item 4: nested CV trains on 4/5 of the rows, so its estimate is pessimistic for the model
 refitted on all of them).
 
-Targets for the headline interval (corrected_t), exit status 1 when one is missed or the study is
+Targets for the headline interval (corrected_t), exit status 1 when one is missed or the simulation is
 incomplete:
 - coverage at nominal 90% within [0.87, 0.98] in every setting and design, at nominal 95% ≥ 0.92;
 - mean width ≤ 1.6 × the plain Student-t interval over the outer folds of one unrepeated run on the
@@ -37,9 +37,9 @@ os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
 import joblib  # noqa: E402
 from _common import Targets, cores  # noqa: E402
-from coverage_study import LEVELS, METHODS, PROCESSES, replicate, summarise  # noqa: E402
+from coverage_simulation import LEVELS, METHODS, PROCESSES, replicate, summarise  # noqa: E402
 
-CACHE = Path(".foldwise/coverage/v1")  # a new version when the study changes: old results no longer apply
+CACHE = Path(".foldwise/coverage/v1")  # a new version when the simulation changes: old results no longer apply
 SIZES = (200, 1000)
 DESIGNS = {"single": "5 outer × 5 inner", "repeated": "3 repeats × 5 outer × 5 inner"}
 
@@ -119,14 +119,14 @@ def main(argv: list[str] | None = None) -> int:
                                         1.6)
     cpu = [r["cpu_seconds"] for name in PROCESSES for n in SIZES for r in _load(name, n, args.replications)
            if "cpu_seconds" in r]
-    if cpu:  # what the whole study costs on idle cores, whatever else ran beside this run
+    if cpu:  # what the whole simulation costs on idle cores, whatever else ran beside this run
         targets.figure(f"CPU time per replication (mean of {len(cpu)})", sum(cpu) / len(cpu), "s")
-        targets.figure(f"whole study on {args.jobs} idle cores, estimated",
+        targets.figure(f"whole simulation on {args.jobs} idle cores, estimated",
                        sum(cpu) / len(cpu) * len(PROCESSES) * len(SIZES) * args.replications / args.jobs / 60, "min")
     targets.figure("wall time", (time.monotonic() - started) / 60, "min")
     if incomplete:
         print("incomplete (run again to continue): " + "; ".join(incomplete))
-        targets.missed.append("complete study")
+        targets.missed.append("complete simulation")
     return targets.finish()
 
 

@@ -1,16 +1,16 @@
-"""A seeded miniature of the coverage study (tests/benchmarks/bench_coverage.py): the headline interval
+"""A seeded miniature of the coverage simulation (tests/benchmarks/bench_coverage.py): the headline interval
 must not collapse.
 
 48 replications of the sparse regression process at n = 200, each a real ``foldwise.nested_cv`` with
 2 repeats × 5 outer × 3 inner folds, truth from 50,000 independent rows scoring the model the
-procedure ships (coverage_study.py). The corrected t interval at nominal 90% must contain the truth
+procedure ships (coverage_simulation.py). The corrected t interval at nominal 90% must contain the truth
 in at least 34 of the 48.
 
-Why 34: the full study's target for a working interval is coverage ≥ 0.87. If the true coverage is
+Why 34: the full simulation's target for a working interval is coverage ≥ 0.87. If the true coverage is
 0.87, the count is Binomial(48, 0.87) and P(count ≤ 33) = 8.0e-4 (scipy.stats.binom.cdf(33, 48,
 0.87)); at 0.90 it is 4.4e-5. So a correct method fails here with probability below 1 in 1,000
 whatever the seed, while an interval that lost its correction on a repeated design (the plain t
-covers about 0.5–0.6 there, see the study's table) passes with probability at most 0.08 at 0.6. The
+covers about 0.5–0.6 there, see the simulation's table) passes with probability at most 0.08 at 0.6. The
 seed is fixed, so the outcome is the same on every run of the same code.
 """
 
@@ -25,7 +25,7 @@ from scipy import stats
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
 
-from coverage_study import replicate, summarise  # noqa: E402  (tests/benchmarks/coverage_study.py)
+from coverage_simulation import replicate, summarise  # noqa: E402  (tests/benchmarks/coverage_simulation.py)
 
 REPLICATIONS, THRESHOLD = 48, 34
 

@@ -9,7 +9,7 @@ sample, ties to the first, as GridSearchCV's ``best_index_``), the winner refitt
 scored on an independent sample of ``TRUTH_ROWS`` rows from the same process. The truth is computed
 here with scikit-learn alone, apart from foldwise.
 
-Shared by ``bench_coverage.py`` (the full study, ``make coverage``) and the seeded miniature in
+Shared by ``bench_coverage.py`` (the full simulation, ``make coverage``) and the seeded miniature in
 ``tests/stats/test_interval_coverage.py``.
 """
 
@@ -141,7 +141,7 @@ def replicate(name: str, n: int, seed: int, *, repeats: int = 3, outer: int = 5,
             for interval in found:
                 entry["intervals"][f"{interval.method}@{level:g}"] = [interval.estimate, interval.low, interval.high]
         result["designs"][design] = entry
-    result["cpu_seconds"] = time.process_time() - cpu_started  # this process only: the study's cost apart from load
+    result["cpu_seconds"] = time.process_time() - cpu_started  # this process only: its cost apart from load
     return result
 
 
