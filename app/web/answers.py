@@ -78,8 +78,18 @@ class AssessmentAnswer(_Answer):
                                                  "fold winners' mean best inner score (what a search without an outer "
                                                  "loop reports) and the mean optimism between them")
     shipping: dict[str, Any] = Field(description="on the selection metric: the final choice on all rows beside the "
-                                                 "fold winners, and the ensemble of the fold winners as the "
-                                                 "alternative, compared with the selection on the same outer folds")
+                                                 "fold winners (the ensemble alternative: /what-to-ship)")
+
+
+class WhatToShip(_Answer):
+    uuid: str
+    final: dict[str, Any] | None = Field(description="the final choice on all rows and how many outer folds chose "
+                                                     "the same configuration, family and parameter values; null "
+                                                     "when the run made no final selection")
+    final_model: bool = Field(description="the final refit on all rows was kept (GET .../final/model)")
+    final_note: str | None
+    ensemble: dict[str, Any] = Field(description="the overall fold winners as one ensemble: its estimate on the "
+                                                 "same outer folds and its paired comparison with the selection")
 
 
 class _ScoreRow(_Answer):

@@ -3,7 +3,9 @@
 The report and the assessment page both call :func:`final_summary`, so they count agreement the same way
 and say the same sentence when the fold winners disagree. The page adds the alternative, the ensemble of
 the overall fold winners, scored on the same outer folds by ``ensemble_estimate`` and compared there with
-the selection procedure, and the routes that download the two models.
+the selection procedure; scoring it reads every member's predictions, so the overview fetches that part
+after it has shown (a fragment route) rather than making every visit wait. Here too: the JSON of the
+whole section and the routes that download the two models.
 """
 
 from __future__ import annotations
@@ -12,7 +14,7 @@ from dataclasses import asdict, dataclass
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
-from fastapi.responses import Response
+from fastapi.responses import HTMLResponse, Response
 
 from foldwise.store import (
     AssessmentRecord,
@@ -21,7 +23,9 @@ from foldwise.store import (
     final_selection_for,
     fitted_model_counts,
     fitted_models_for,
+    winners_for,
 )
+from foldwise.web.answers import WhatToShip
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import record_or_404
@@ -86,15 +90,14 @@ class FoldWinnerEnsemble:
 
 @dataclass(frozen=True)
 class Shipping:
-    """What the page's "What to ship" section shows."""
+    """What the page's "What to ship" section shows at once; the ensemble follows (``fold_winner_ensemble``)."""
 
     final: FinalSummary | None
     final_model: bool  # the final refit on every row was kept: it can be downloaded
     final_note: str | None  # why there is no final choice or no model
-    ensemble: FoldWinnerEnsemble
 
 
-def shipping(engine, record: AssessmentRecord, winners: pd.DataFrame, final: StoredFinal | None) -> Shipping:
+def shipping(record: AssessmentRecord, winners: pd.DataFrame, final: StoredFinal | None) -> Shipping:
     """``winners``: the overall fold winners on the selection metric (``store.winners_for``)."""
     summary, note = None, None
     if final is None:
@@ -107,19 +110,18 @@ def shipping(engine, record: AssessmentRecord, winners: pd.DataFrame, final: Sto
         if not final.has_model:
             note = ("The chosen configuration's refit on all rows was not kept"
                     + (f": {final.selection.refit_error}" if final.selection.refit_error else "") + ".")
-    return Shipping(final=summary, final_model=bool(final and final.has_model), final_note=note,
-                    ensemble=_ensemble(engine, record, winners))
+    return Shipping(final=summary, final_model=bool(final and final.has_model), final_note=note)
 
 
 def shipping_json(ship: Shipping) -> dict:
     """The section as the JSON API answers it: the same numbers, plus the sentence said when folds disagree."""
     final = None if ship.final is None else asdict(ship.final) | {"unstable": ship.final.unstable,
                                                                   "instability": ship.final.instability}
-    return {"final": final, "final_model": ship.final_model, "final_note": ship.final_note,
-            "ensemble": asdict(ship.ensemble)}
+    return {"final": final, "final_model": ship.final_model, "final_note": ship.final_note}
 
 
-def _ensemble(engine, record: AssessmentRecord, winners: pd.DataFrame) -> FoldWinnerEnsemble:
+def fold_winner_ensemble(engine, record: AssessmentRecord, winners: pd.DataFrame) -> FoldWinnerEnsemble:
+    """The overall fold winners' ensemble on the selection metric, compared with the selection procedure."""
     from foldwise.web.ensemble_estimate import ensemble_estimate
 
     members = list(dict.fromkeys(winners["config"]))
@@ -132,6 +134,30 @@ def _ensemble(engine, record: AssessmentRecord, winners: pd.DataFrame) -> FoldWi
         estimate, note = None, f"The ensemble of the fold winners cannot be scored: {refused.detail}"
     counts = fitted_model_counts(engine, record.uuid)
     return FoldWinnerEnsemble(members, estimate, note, all(counts.get(member) for member in members))
+
+
+@router.get("/assessments/{uuid}/what-to-ship/ensemble", name="what_to_ship_ensemble", response_class=HTMLResponse,
+            include_in_schema=False)
+def what_to_ship_ensemble(request: Request, uuid: str):
+    """The ensemble part of the overview's "What to ship", as the HTML the overview inserts once it has it."""
+    engine = request.app.state.engine
+    record = record_or_404(engine, uuid)
+    ensemble = fold_winner_ensemble(engine, record, winners_for(engine, uuid))
+    return request.app.state.templates.TemplateResponse(request, "_what_to_ship_ensemble.html",
+                                                        {"record": record, "e": ensemble})
+
+
+@router.get("/api/assessments/{uuid}/what-to-ship", name="what_to_ship_json", response_model=WhatToShip,
+            responses=error_responses(404))
+def what_to_ship_json(request: Request, uuid: str):
+    """On the selection metric: the final choice on all rows beside the fold winners, and the ensemble of the
+    overall fold winners compared with the selection procedure on the same outer folds."""
+    engine = request.app.state.engine
+    record = record_or_404(engine, uuid)
+    winners = winners_for(engine, uuid)
+    ensemble = fold_winner_ensemble(engine, record, winners)
+    return {"uuid": record.uuid, **shipping_json(shipping(record, winners, final_selection_for(engine, uuid))),
+            "ensemble": asdict(ensemble)}
 
 
 @dataclass(frozen=True)
@@ -173,7 +199,6 @@ def fold_winners_model(request: Request, uuid: str):
     import skops.io
 
     from foldwise.ensemble import UntrustedTypes, prefit_ensemble
-    from foldwise.store import winners_for
     from foldwise.web.ensemble_estimate import ensemble_estimate
 
     engine = request.app.state.engine

@@ -7,6 +7,7 @@ import html
 import math
 import re
 
+import httpx
 import numpy as np
 import pytest
 import skops.io
@@ -163,6 +164,7 @@ def test_what_to_ship_agrees_with_the_report_the_api_and_a_plain_count(client, s
     _push(client, shipped)
     page = client.get(f"/assessments/{shipped.uuid}").text
     api = client.get(f"/api/assessments/{shipped.uuid}").json()["shipping"]
+    assert client.get(f"/api/assessments/{shipped.uuid}/what-to-ship").json()["final"] == api["final"]
     report = client.get(f"/assessments/{shipped.uuid}/report").text
     choice = shipped.final_choice
     winners = _fold_winners(shipped, shipped.selection_metric)
@@ -187,7 +189,7 @@ def test_what_to_ship_agrees_with_the_report_the_api_and_a_plain_count(client, s
 
 def test_the_fold_winners_ensemble_is_compared_with_the_selection_on_the_same_folds(client, shipped):
     _push(client, shipped)
-    api = client.get(f"/api/assessments/{shipped.uuid}").json()["shipping"]["ensemble"]
+    api = client.get(f"/api/assessments/{shipped.uuid}/what-to-ship").json()["ensemble"]
     winners = _fold_winners(shipped, shipped.selection_metric)
     assert api["members"] == list(dict.fromkeys(config for config, _, _ in winners))
     estimate = api["estimate"]
@@ -206,8 +208,8 @@ def test_the_fold_winners_ensemble_is_compared_with_the_selection_on_the_same_fo
     assert comparison["mean_diff"] == pytest.approx(d.mean(), abs=1e-12)
     assert (comparison["diff_low"], comparison["diff_high"]) == pytest.approx((d.mean() - half, d.mean() + half),
                                                                               abs=1e-12)
-    page = client.get(f"/assessments/{shipped.uuid}").text
-    said = _text(page, "ensemble-comparison")
+    fragment = client.get(f"/assessments/{shipped.uuid}/what-to-ship/ensemble").text
+    said = _text(fragment, "ensemble-comparison")
     assert f"95% interval {d.mean() - half:.4f} to {d.mean() + half:.4f}" in said and comparison["verdict"] in said
 
 
@@ -231,8 +233,9 @@ def test_both_models_download_and_predict_as_the_run_made_them(client, shipped):
         per_member.append(np.mean([fitted.predict_proba(X) for fitted in kept], axis=0))
     np.testing.assert_allclose(combined.predict_proba(X), np.mean(per_member, axis=0), atol=1e-12)
     page = client.get(f"/assessments/{shipped.uuid}").text
-    downloads = page.split('id="ship-downloads"')[1].split("</ul>")[0]
-    assert "/final/model" in downloads and "/fold-winners/model" in downloads
+    assert "/final/model" in page.split('id="final-download"')[1].split("</ul>")[0]
+    fragment = client.get(f"/assessments/{shipped.uuid}/what-to-ship/ensemble").text
+    assert "/fold-winners/model" in fragment.split('id="ship-downloads"')[1].split("</ul>")[0]
 
 
 def test_without_a_final_selection_the_page_says_so_and_the_model_is_refused(client, small_assessment):
@@ -244,7 +247,9 @@ def test_without_a_final_selection_the_page_says_so_and_the_model_is_refused(cli
     assert refused.status_code == 409 and "final=True" in refused.text
     assert client.get("/api/assessments/00000000-0000-0000-0000-000000000000/final/model").status_code == 404
     # No fitted fold winners were kept: no ensemble model file, and the route says why.
-    assert "keep_models=True" in page.split('id="ship-downloads"')[1].split("</ul>")[0]
+    fragment = client.get(f"/assessments/{small_assessment.uuid}/what-to-ship/ensemble").text
+    assert "keep_models=True" in fragment.split('id="ship-downloads"')[1].split("</ul>")[0]
+    assert client.get(f"/api/assessments/{small_assessment.uuid}/what-to-ship").json()["final"] is None
     assert client.get(f"/api/assessments/{small_assessment.uuid}/fold-winners/model").status_code == 409
 
 
@@ -266,6 +271,9 @@ def test_the_overview_reads_in_a_browser_and_leads_to_the_comparison(browser, li
     page, problems = open_watched(browser, f"{live_server.url}/assessments/{shipped.uuid}")
     assert page.locator("#nested-estimate").is_visible() and page.locator("#inner-best").is_visible()
     assert page.locator("#what-to-ship #final-choice").is_visible()
+    page.wait_for_selector("#ship-ensemble[data-state=ready] #ensemble-comparison")
+    expected = httpx.get(f"{live_server.url}/api/assessments/{shipped.uuid}/what-to-ship").json()["ensemble"]
+    assert f"{expected['estimate']['mean']:.3f}" in page.locator("#ensemble-alternative").inner_text()
     reading = page.locator("#family-reading").inner_text()
     page.click("#compare-first-two")
     page.wait_for_url("**/compare?**")

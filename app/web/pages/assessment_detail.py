@@ -55,7 +55,7 @@ class AssessmentContext:
     n_failures: int
     ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
     headline: Headline  # nested estimate and interval beside the non-nested best inner score, on `metric`
-    shipping: Shipping  # the final choice beside the fold winners, and the ensemble of them (selection metric)
+    shipping: Shipping  # the final choice beside the fold winners (selection metric); the ensemble follows
 
 
 def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentContext:
@@ -91,7 +91,7 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
         n_failures=len(failures), ensembles=ensembles_for(engine, uuid),
         headline=headline(record, metric=metric, winners=overall, sizes=fold_sizes_for(engine, uuid),
                           summary=summary, family_outer=outer, final=final),
-        shipping=shipping(engine, record, selecting, final))
+        shipping=shipping(record, selecting, final))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
