@@ -23,6 +23,23 @@ from foldwise.store import AssessmentRecord, StoredFinal
 from foldwise.web.fold_scores import family_fold_scores
 from foldwise.web.serialise import plain
 
+# The best and worst scores a scikit-learn scorer can give, for the names it knows (common practice; from the
+# scorers' definitions): the corrected t interval is symmetric and may pass them, which the page then says.
+_UNIT = ("accuracy", "balanced_accuracy", "roc_auc", "average_precision", "f1", "precision", "recall", "jaccard",
+         "top_k_accuracy")
+
+
+def score_bounds(metric: str) -> tuple[float, float]:
+    """(lowest, highest) possible score of a scikit-learn scorer name; infinite where unbounded or unknown."""
+    if metric.startswith("neg_"):
+        return -math.inf, 0.0
+    if metric in ("r2", "explained_variance", "d2_absolute_error_score"):
+        return -math.inf, 1.0
+    if metric.startswith(_UNIT):
+        return 0.0, 1.0
+    return -math.inf, math.inf
+
+
 FEW_OUTER_FOLDS = 5  # at or below this many outer folds (over all repeats) the page proposes repeats
 _ROPE = 0.01  # the paired comparison's default region of practical equivalence (the comparison page's)
 
@@ -45,6 +62,8 @@ class HeadlineInterval:
     level: float
     method: str  # definitions.HEADLINE_METHOD
     method_name: str  # in words, for the page
+    past_bound: float | None  # the best (or worst) score possible, when the interval passes it
+    past_side: str | None  # "best" or "worst"
 
 
 @dataclass(frozen=True)
@@ -96,6 +115,9 @@ def headline(record: AssessmentRecord, *, metric: str, winners: pd.DataFrame, si
     optimism = definitions.nested_estimate(
         definitions.optimism(winners["inner_mean"].to_numpy(dtype=float), scores), n_folds=record.n_folds)
     interval = nested.interval
+    lowest, highest = score_bounds(metric)
+    past, side = (highest, "best") if interval.high > highest else (lowest, "worst") if interval.low < lowest \
+        else (None, None)
     mean_train = float(sizes["n_train"].mean()) if len(sizes) else math.nan
     mean_test = float(sizes["n_test"].mean()) if len(sizes) else math.nan
     repeats, limit = _repeats(record, mean_train, mean_test)
@@ -103,7 +125,7 @@ def headline(record: AssessmentRecord, *, metric: str, winners: pd.DataFrame, si
     return Headline(
         metric=metric, estimate=_estimate(nested), interval=HeadlineInterval(
             low=plain(interval.low), high=plain(interval.high), level=interval.level, method=interval.method,
-            method_name="corrected resampled t"),
+            method_name="corrected resampled t", past_bound=past, past_side=side),
         inner_best=_estimate(inner), optimism=_estimate(optimism),
         final_inner_best=_final_inner_best(record, metric, final), families=_reading(
             record, metric, summary, family_outer, sizes),

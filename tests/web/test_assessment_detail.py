@@ -282,3 +282,16 @@ def test_the_overview_reads_in_a_browser_and_leads_to_the_comparison(browser, li
     report = report_html(shipped)
     assert _text(report, "final-choice").startswith("On all rows the procedure chose")
     page.close()
+
+
+def test_an_interval_past_the_best_score_possible_says_so(client, shipped):
+    _push(client, shipped)
+    body = client.get(f"/api/assessments/{shipped.uuid}").json()["headline"]
+    page = client.get(f"/assessments/{shipped.uuid}").text
+    # roc_auc cannot pass 1 (scikit-learn's roc_auc_score is an area under a curve in the unit square); on these
+    # folds (no shuffling, so always the same) the symmetric interval does.
+    assert body["interval"]["high"] > 1
+    assert (body["interval"]["past_bound"], body["interval"]["past_side"]) == (1.0, "best")
+    assert "passes 1, the best score roc_auc can reach" in _text(page, "interval-bound")
+    accuracy = client.get(f"/api/assessments/{shipped.uuid}", params={"metric": "accuracy"}).json()["headline"]
+    assert (accuracy["interval"]["high"] > 1) == (accuracy["interval"]["past_bound"] == 1.0)
