@@ -15,15 +15,17 @@ from foldwise.store.ensembles import (
     insert_ensemble,
 )
 from foldwise.store.lookup import AssessmentNotFound
-from foldwise.store.queries import (
-    AssessmentRecord,
+from foldwise.store.queries import AssessmentRecord, list_assessments
+from foldwise.store.reader import (
+    AssessmentReader,
+    StoreReader,
     failures_for,
     family_winners_for,
     fold_sizes_for,
     get_assessment,
     inner_scores_for,
-    list_assessments,
     outer_scores_for,
+    read_assessment,
     winners_for,
 )
 from foldwise.store.restore import (
@@ -40,7 +42,9 @@ from foldwise.store.writes import UuidConflict, delete_assessment, insert_assess
 
 __all__ = [
     "AssessmentNotFound",
+    "AssessmentReader",
     "AssessmentRecord",
+    "StoreReader",
     "UuidConflict",
     "EnsembleRecord",
     "StoredModel",
@@ -74,5 +78,6 @@ __all__ = [
     "outer_folds_for",
     "outer_scores_for",
     "predictions_for",
+    "read_assessment",
     "winners_for",
 ]

@@ -17,7 +17,7 @@ from datetime import UTC, datetime
 
 import numpy as np
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter
 from fastapi.responses import HTMLResponse
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 
@@ -25,9 +25,9 @@ import foldwise
 from foldwise import definitions
 from foldwise.assessment import Assessment
 from foldwise.stats.paired import compare_paired
-from foldwise.store import load_payload
 from foldwise.web.fold_scores import family_fold_scores, fold_sizes
 from foldwise.web.formatting import CAUTION, FILTERS, params_text
+from foldwise.web.lookup import ReaderDep
 from foldwise.web.resources import templates_dir
 from foldwise.web.shipping import FinalSummary, final_summary
 
@@ -120,14 +120,9 @@ def report_html(assessment: Assessment, **options) -> str:
 
 
 @router.get("/assessments/{uuid}/report", name="assessment_report", include_in_schema=False)
-def assessment_report(request: Request, uuid: str):
+def assessment_report(reader: ReaderDep):
     """The report as a download: the whole assessment is read, so it is made on request, not on every visit."""
-    try:
-        payload = load_payload(request.app.state.engine, uuid)
-    except ValueError:  # not a uuid at all
-        payload = None
-    if payload is None:
-        raise HTTPException(404, f"no assessment {uuid} in this store")
+    payload = reader.payload()
     return HTMLResponse(report_html(Assessment(payload)), headers={
         "content-disposition": f'attachment; filename="foldwise-report-{payload.uuid}.html"'})
 

@@ -16,19 +16,11 @@ import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
 from fastapi.responses import HTMLResponse, Response
 
-from foldwise.store import (
-    AssessmentRecord,
-    StoredFinal,
-    final_model_for,
-    final_selection_for,
-    fitted_model_counts,
-    fitted_models_for,
-    winners_for,
-)
+from foldwise.store import AssessmentReader, AssessmentRecord, StoredFinal
 from foldwise.web.answers import WhatToShip
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
-from foldwise.web.lookup import record_or_404
+from foldwise.web.lookup import ReaderDep
 
 router = APIRouter()
 
@@ -120,44 +112,46 @@ def shipping_json(ship: Shipping) -> dict:
     return {"final": final, "final_model": ship.final_model, "final_note": ship.final_note}
 
 
-def fold_winner_ensemble(engine, record: AssessmentRecord, winners: pd.DataFrame) -> FoldWinnerEnsemble:
+def fold_winner_ensemble(reader: AssessmentReader) -> FoldWinnerEnsemble:
     """The overall fold winners' ensemble on the selection metric, compared with the selection procedure."""
     from foldwise.web.ensemble_estimate import ensemble_estimate
 
-    members = list(dict.fromkeys(winners["config"]))
+    record = reader.record
+    members = list(dict.fromkeys(reader.winners(kind="overall")["config"]))
     if not members:
         return FoldWinnerEnsemble(members, None, "No outer fold has a winner, so there is no ensemble of them.",
                                   False)
     try:
-        estimate, note = ensemble_estimate(engine, record, members, metric=record.design.selection_metric), None
+        estimate, note = ensemble_estimate(reader, members, metric=record.design.selection_metric), None
     except HTTPException as refused:  # no stored predictions, or no metric computable from them
-        estimate, note = None, f"The ensemble of the fold winners cannot be scored: {refused.detail}"
-    counts = fitted_model_counts(engine, record.uuid)
+        estimate, note = None, f"The ensemble of the fold winners cannot be scored: {_said(refused.detail)}"
+    counts = reader.fitted_model_counts()
     return FoldWinnerEnsemble(members, estimate, note, all(counts.get(member) for member in members))
 
 
 @router.get("/assessments/{uuid}/what-to-ship/ensemble", name="what_to_ship_ensemble", response_class=HTMLResponse,
             include_in_schema=False)
-def what_to_ship_ensemble(request: Request, uuid: str):
+def what_to_ship_ensemble(request: Request, reader: ReaderDep):
     """The ensemble part of the overview's "What to ship", as the HTML the overview inserts once it has it."""
-    engine = request.app.state.engine
-    record = record_or_404(engine, uuid)
-    ensemble = fold_winner_ensemble(engine, record, winners_for(engine, uuid))
     return request.app.state.templates.TemplateResponse(request, "_what_to_ship_ensemble.html",
-                                                        {"record": record, "e": ensemble})
+                                                        {"record": reader.record, "e": fold_winner_ensemble(reader)})
 
 
 @router.get("/api/assessments/{uuid}/what-to-ship", name="what_to_ship_json", response_model=WhatToShip,
             responses=error_responses(404))
-def what_to_ship_json(request: Request, uuid: str):
+def what_to_ship_json(reader: ReaderDep):
     """On the selection metric: the final choice on all rows beside the fold winners, and the ensemble of the
     overall fold winners compared with the selection procedure on the same outer folds."""
-    engine = request.app.state.engine
-    record = record_or_404(engine, uuid)
-    winners = winners_for(engine, uuid)
-    ensemble = fold_winner_ensemble(engine, record, winners)
-    return {"uuid": record.uuid, **shipping_json(shipping(record, winners, final_selection_for(engine, uuid))),
-            "ensemble": asdict(ensemble)}
+    record = reader.record
+    ship = shipping(record, reader.winners(kind="overall"), reader.final_selection())
+    return {"uuid": record.uuid, **shipping_json(ship), "ensemble": asdict(fold_winner_ensemble(reader))}
+
+
+def _said(detail) -> str:
+    """A refusal's message: its detail as raised (text) or in the one refusal shape (a list of {loc, msg})."""
+    if isinstance(detail, list):
+        return "; ".join(str(entry.get("msg", entry)) if isinstance(entry, dict) else str(entry) for entry in detail)
+    return str(detail)
 
 
 @dataclass(frozen=True)
@@ -173,15 +167,14 @@ class _Members:
                                                                                  "format": "binary"}}},
                              "description": "a skops file: the chosen configuration refit on every row"},
                        **error_responses(404, 409)})
-def final_model(request: Request, uuid: str):
+def final_model(reader: ReaderDep):
     """The model the nested estimate describes: the final selection's choice refit on every row (skops)."""
-    engine = request.app.state.engine
-    record_or_404(engine, uuid)
-    final = final_selection_for(engine, uuid)
+    uuid = reader.uuid
+    final = reader.final_selection()
     if final is None:
         raise HTTPException(409, "this assessment has no final selection on all rows: run "
                                  "nested_cv(..., final=True) to make one")
-    data = final_model_for(engine, uuid)
+    data = reader.final_model()
     if data is None:
         reason = final.selection.refit_error or "every configuration failed, or skops could not write the model"
         raise HTTPException(409, f"the final selection kept no model: {reason}")
@@ -194,22 +187,20 @@ def final_model(request: Request, uuid: str):
                                                                                  "format": "binary"}}},
                              "description": "a skops file: the kept overall fold winners, averaged"},
                        **error_responses(404, 409, 422)})
-def fold_winners_model(request: Request, uuid: str):
+def fold_winners_model(reader: ReaderDep):
     """The ensemble of the overall fold winners as fitted on their outer training sets, averaged (skops)."""
     import skops.io
 
     from foldwise.ensemble import UntrustedTypes, prefit_ensemble
     from foldwise.web.ensemble_estimate import ensemble_estimate
 
-    engine = request.app.state.engine
-    record = record_or_404(engine, uuid)
-    members = list(dict.fromkeys(winners_for(engine, uuid)["config"]))
+    uuid = reader.uuid
+    members = list(dict.fromkeys(reader.winners(kind="overall")["config"]))
     if not members:
         raise HTTPException(409, "no outer fold has a winner, so there is no ensemble of them")
-    voting = ensemble_estimate(engine, record, members, metric=None)["voting"]
+    voting = ensemble_estimate(reader, members, metric=None)["voting"]
     try:
-        fitted = prefit_ensemble(record, _Members(members, voting),
-                                 fitted_models_for(engine, uuid, configs=members))
+        fitted = prefit_ensemble(reader.record, _Members(members, voting), reader.fitted_models(members))
     except LookupError as error:
         raise HTTPException(409, str(error)) from None
     except (UntrustedTypes, ValueError) as error:

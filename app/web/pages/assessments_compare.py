@@ -13,12 +13,12 @@ from fastapi.responses import HTMLResponse
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, list_assessments, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
 from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
 from foldwise.web.errors import error_responses
-from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
-from foldwise.web.lookup import record_or_404
+from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
+from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.query import Rope
 from foldwise.web.serialise import plain, records
@@ -58,22 +58,23 @@ class AssessmentsCompareContext:
     intervals_figure: str | None
 
 
-def assessments_compare_context(engine, *, x: str | None, y: str | None, metric: str | None,
+def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | None, metric: str | None,
                                 rope: float) -> AssessmentsCompareContext:
     if not (math.isfinite(rope) and rope >= 0):
         raise HTTPException(422, f"rope must be a finite number >= 0 (in score units, e.g. 0.01); "
                                  f"got {rope!r}")
-    listing = records(list_assessments(engine))
+    listing = records(store.assessments())
     if not (x and y):
         newest = [row["uuid"] for row in listing]
         x = x or next(iter(newest), "")
         y = y or next((uuid for uuid in newest if uuid != x), "")
         return AssessmentsCompareContext(listing, x, y, None, None, None, [], rope, False, "", [], [],
                                          None, None)
-    first, second = record_or_404(engine, x), record_or_404(engine, y)
+    x_reader, y_reader = (assessment_or_404(store, uuid, loc=("query", name)) for name, uuid in (("x", x), ("y", y)))
+    first, second = x_reader.record, y_reader.record
     metrics = [m for m in first.design.metrics if m in second.design.metrics]
     metric = _common_metric(first, second, metric, metrics)
-    left, right = _side(engine, first, metric), _side(engine, second, metric)
+    left, right = _side(x_reader, metric), _side(y_reader, metric)
     reason = _unpaired_reason(first, second)
     comparisons = [] if reason else _comparisons(left, right, rope=rope)
     summaries = _summaries(left, right)
@@ -87,20 +88,20 @@ def assessments_compare_context(engine, *, x: str | None, y: str | None, metric:
 
 @router.get("/compare", name="assessments_compare", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def assessments_compare(request: Request, x: str | None = None, y: str | None = None,
+def assessments_compare(request: Request, store: StoreDep, x: str | None = None, y: str | None = None,
                         metric: str | None = None, rope: Rope = 0.01):
-    context = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+    context = assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope)
     return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
                                                         {"page": context})
 
 
 @router.get("/api/compare", name="assessments_compare_json", response_model=AssessmentsComparison,
             responses=error_responses(404, 422))
-def assessments_compare_json(request: Request, x: Annotated[str, Query(min_length=1)],
+def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length=1)],
                              y: Annotated[str, Query(min_length=1)],
                              metric: str | None = None, rope: Rope = 0.01):
     """Two assessments: paired tests family by family when their outer folds match, else summaries."""
-    page = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+    page = assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope)
     return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,
             "paired": page.paired, "reason": page.reason or None,
             "fingerprints": {"x": page.x.fingerprint, "y": page.y.fingerprint},
@@ -119,12 +120,13 @@ def _common_metric(x: AssessmentRecord, y: AssessmentRecord, metric: str | None,
     return metric
 
 
-def _side(engine, record: AssessmentRecord, metric: str) -> Side:
-    outer = outer_scores_for(engine, record.uuid)
+def _side(reader: AssessmentReader, metric: str) -> Side:
+    record = reader.record
+    outer, sizes = reader.outer(metric=metric, winners="either"), reader.fold_sizes()
     table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
     ranked = table.dropna(subset=["mean"])["family"]
-    return Side(record=record, families=family_fold_scores(outer, metric, [f.name for f in record.families]),
-                overall=overall_fold_scores(outer, metric), sizes=fold_sizes(outer),
+    return Side(record=record, families=family_fold_scores(outer, metric, record.family_names, folds=sizes.index),
+                overall=overall_fold_scores(outer, metric, folds=sizes.index), sizes=sizes,
                 best=str(ranked.iloc[0]) if len(ranked) else None)
 
 

@@ -10,11 +10,11 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise.payload import Configuration
-from foldwise.store import AssessmentRecord, family_winners_for, winners_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.stability import choice_bars_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import records
 
@@ -52,11 +52,11 @@ class FoldWinnersContext:
     stability: list[FamilyStability]
 
 
-def fold_winners_context(engine, uuid: str, *, metric: str | None) -> FoldWinnersContext:
-    record = record_or_404(engine, uuid)
+def fold_winners_context(reader: AssessmentReader, *, metric: str | None) -> FoldWinnersContext:
+    record = reader.record
     metric = metric_or_422(record, metric)
-    overall = winners_for(engine, uuid, metric=metric)
-    per_family = family_winners_for(engine, uuid, metric=metric)
+    overall = reader.winners(kind="overall", metric=metric)
+    per_family = reader.winners(kind="family", metric=metric)
     families = [family.name for family in record.families]
     colours = family_colours(families)
     design = record.design
@@ -108,13 +108,13 @@ def _key(value) -> str:
 
 @router.get("/assessments/{uuid}/fold-winners", name="fold_winners", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def fold_winners(request: Request, uuid: str, metric: str | None = None):
-    context = fold_winners_context(request.app.state.engine, uuid, metric=metric)
+def fold_winners(request: Request, reader: ReaderDep, metric: str | None = None):
+    context = fold_winners_context(reader, metric=metric)
     return request.app.state.templates.TemplateResponse(request, "fold_winners.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/fold-winners", name="api_fold_winners",
+@router.get("/api/assessments/{uuid}/fold-winners", name="fold_winners_json",
             response_model=context_model(FoldWinnersContext),
             responses=error_responses(404, 422))
-def fold_winners_json(request: Request, uuid: str, metric: str | None = None):
-    return context_json(fold_winners_context(request.app.state.engine, uuid, metric=metric))
+def fold_winners_json(reader: ReaderDep, metric: str | None = None):
+    return context_json(fold_winners_context(reader, metric=metric))

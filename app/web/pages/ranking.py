@@ -9,12 +9,12 @@ from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.ranking import rank_families, ranking_verdict
-from foldwise.store import AssessmentRecord, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import Ranking
 from foldwise.web.charts.comparison import ranks_figure
 from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import family_fold_scores
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
 
@@ -34,12 +34,12 @@ class RankingContext:
     ranks_figure: str
 
 
-def ranking_context(engine, uuid: str, *, metric: str | None) -> RankingContext:
-    record = record_or_404(engine, uuid)
+def ranking_context(reader: AssessmentReader, *, metric: str | None) -> RankingContext:
+    record = reader.record
     metric = metric_or_422(record, metric)
     families = [family.name for family in record.families]
-    outer = outer_scores_for(engine, uuid)
-    scores = family_fold_scores(outer, metric, families)
+    outer = reader.outer(metric=metric, winners="family")
+    scores = family_fold_scores(outer, metric, families, folds=reader.fold_sizes().index)
     try:
         ranking = rank_families(scores)
     except ValueError as error:
@@ -63,15 +63,15 @@ def ranking_context(engine, uuid: str, *, metric: str | None) -> RankingContext:
 
 @router.get("/assessments/{uuid}/ranking", name="ranking", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def ranking(request: Request, uuid: str, metric: str | None = None):
-    context = ranking_context(request.app.state.engine, uuid, metric=metric)
+def ranking(request: Request, reader: ReaderDep, metric: str | None = None):
+    context = ranking_context(reader, metric=metric)
     return request.app.state.templates.TemplateResponse(request, "ranking.html", {"page": context})
 
 
 @router.get("/api/assessments/{uuid}/ranking", name="ranking_json", response_model=Ranking,
             responses=error_responses(404, 422))
-def ranking_json(request: Request, uuid: str, metric: str | None = None):
+def ranking_json(reader: ReaderDep, metric: str | None = None):
     """Friedman's test over the outer folds, mean ranks (1 = best) and Nemenyi's critical difference."""
-    page = ranking_context(request.app.state.engine, uuid, metric=metric)
+    page = ranking_context(reader, metric=metric)
     return {"uuid": page.record.uuid, "metric": page.metric, **page.result, "verdict": page.verdict,
             "families": page.rows, "blocks": page.blocks}

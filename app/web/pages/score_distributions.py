@@ -11,12 +11,12 @@ from fastapi.responses import HTMLResponse
 
 from foldwise.definitions import HEADLINE_LEVEL, HEADLINE_METHOD, headline_interval
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, fold_sizes_for, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.distributions import distribution_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
 
@@ -67,26 +67,26 @@ class DistributionsContext:
     distributions_figure: str
 
 
-def score_distributions_context(engine, uuid: str, *, metric: str | None, by: str = "family",
+def score_distributions_context(reader: AssessmentReader, *, metric: str | None, by: str = "family",
                                 sort: str = "mean", families: list[str] | None = None
                                 ) -> DistributionsContext:
-    record = record_or_404(engine, uuid)
+    record = reader.record
     metric = metric_or_422(record, metric)
     names = [family.name for family in record.families]
     selected = _chosen_families(names, families)
-    outer = outer_scores_for(engine, uuid)
-    outer = outer[outer["metric"] == metric]
-    folds = pd.MultiIndex.from_frame(outer[["repeat", "outer_fold"]].drop_duplicates().sort_values(
-        ["repeat", "outer_fold"]))
-    shape = _Shape(sizes=fold_sizes_for(engine, uuid).reindex(folds), repeated=record.design.n_repeats > 1)
+    message = ""
+    if by == "config" and not record.design.refit_all:
+        by, message = "family", CONFIG_VIEW_NEEDS_REFIT_ALL
+    # The family view needs the fold winners' rows only; the configuration view every row of the metric.
+    outer = reader.outer(metric=metric, winners=None if by == "config" else "either")
+    sizes = reader.fold_sizes()
+    folds = sizes.index
+    shape = _Shape(sizes=sizes, repeated=record.design.n_repeats > 1)
     winners = outer[outer["family_winner"]]
     family_groups = [_group(family, family, None, None, winners[winners["family"] == family], folds, shape)
                      for family in selected]
     family_groups = _sorted(family_groups, sort, key=lambda group: group.family.lower())
-    message = ""
     config_groups: list[ScoreGroup] = []
-    if by == "config" and not record.design.refit_all:
-        by, message = "family", CONFIG_VIEW_NEEDS_REFIT_ALL
     if by == "config":
         for family_group in family_groups:
             configs = [c for c in record.configurations if c.family == family_group.family]
@@ -159,23 +159,19 @@ def _sorted(groups: list[ScoreGroup], sort: str, *, key) -> list[ScoreGroup]:
     return sorted(groups, key=lambda group: (group.summary["mean"] is None, -(group.summary["mean"] or 0.0)))
 
 
-def _context(request: Request, uuid: str, metric, by, sort, families) -> DistributionsContext:
-    return score_distributions_context(request.app.state.engine, uuid, metric=metric, by=by, sort=sort,
-                                       families=families)
-
-
 @router.get("/assessments/{uuid}/distributions", name="score_distributions", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def score_distributions(request: Request, uuid: str, metric: str | None = None, by: By = "family",
+def score_distributions(request: Request, reader: ReaderDep, metric: str | None = None, by: By = "family",
                         sort: Sort = "mean", families: Families = None):
-    context = _context(request, uuid, metric, by, sort, families)
+    context = score_distributions_context(reader, metric=metric, by=by, sort=sort, families=families)
     templates = request.app.state.templates
     return templates.TemplateResponse(request, "score_distributions.html", {"page": context})
 
 
-@router.get("/api/assessments/{uuid}/distributions", name="api_score_distributions",
+@router.get("/api/assessments/{uuid}/distributions", name="score_distributions_json",
             response_model=context_model(DistributionsContext),
             responses=error_responses(404, 422))
-def score_distributions_json(request: Request, uuid: str, metric: str | None = None, by: By = "family",
+def score_distributions_json(reader: ReaderDep, metric: str | None = None, by: By = "family",
                              sort: Sort = "mean", families: Families = None):
-    return context_json(_context(request, uuid, metric, by, sort, families))
+    return context_json(score_distributions_context(reader, metric=metric, by=by, sort=sort,
+                                                    families=families))
