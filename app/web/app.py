@@ -11,7 +11,7 @@ import foldwise
 from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api, errors, live_reports, report, sharing
+from foldwise.web import api, errors, live_reports, report, sharing, shipping
 from foldwise.web.assets import app_assets, static_url
 from foldwise.web.charts.base import chart_style
 from foldwise.web.compression import Compressed
@@ -62,6 +62,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
     app.include_router(report.router)
+    app.include_router(shipping.router)
     app.include_router(interval_method.router)
     app.include_router(score_distributions.router)
     app.include_router(fold_winners.router)

@@ -6,6 +6,8 @@ import math
 
 from markupsafe import Markup
 
+from foldwise.stats.paired import probability_text
+
 CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
            "safety needs external validation and must follow local regulation and licensed practice.")
 
@@ -14,6 +16,14 @@ def score(value, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "–"
     return f"{value:.{digits}f}"
+
+
+def probability(value) -> str:
+    """A posterior probability as the comparison's verdict writes it (``probability_text``), so card and
+    sentence agree digit for digit."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "–"
+    return probability_text(value)
 
 
 def design_text(n_outer: int, n_inner: int, n_repeats: int) -> str:
@@ -41,4 +51,5 @@ def json_script(text: str) -> Markup:
     return Markup(escaped.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
 
 
-FILTERS = {"score": score, "params_text": params_text, "seconds": seconds, "json_script": json_script}
+FILTERS = {"score": score, "probability": probability, "params_text": params_text, "seconds": seconds,
+           "json_script": json_script}
