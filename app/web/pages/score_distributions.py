@@ -17,7 +17,7 @@ from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import ReaderDep, metric_or_422
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -102,7 +102,7 @@ def score_distributions_context(reader: AssessmentReader, *, metric: str | None,
         selected=selected, colours=colours, overall=overall, interval_method=HEADLINE_METHOD,
         interval_level=HEADLINE_LEVEL, spread_shown=not shape.repeated, family_groups=family_groups,
         config_groups=config_groups, message=message,
-        distributions_figure=distribution_figure(shown, colours, metric=metric))
+        distributions_figure=distribution_figure(shown, colours, family_symbols(names), metric=metric))
 
 
 def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
