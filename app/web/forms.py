@@ -69,3 +69,11 @@ def _refused_field(error: HTTPException) -> tuple[str | None, str]:
         if len(loc) == 2 and loc[0] == "query":
             return str(loc[1]), str(detail[0].get("msg", ""))
     return None, str(detail)
+
+
+def form_page(request, template: str, build: Callable[..., Built], sent: dict, defaults: dict | None = None):
+    """The page ``template`` filled by ``build(**sent)``, keeping its place (``keep_place``) when a field is
+    refused: the template receives ``page`` and ``form``; the answer is 422 when a field was refused."""
+    context, form = keep_place(build, sent, defaults or {})
+    return request.app.state.templates.TemplateResponse(request, template, {"page": context, "form": form},
+                                                        status_code=form.status)

@@ -19,12 +19,12 @@ from foldwise.runner.recorder import Recorder
 def demo_shaped() -> list:
     """The demo's three designs: grouped 5 folds, 2 repeats × 5 folds, and a 5-fold regression."""
     return [
-        _recorded("Gearbox faults, folds grouped by turbine (invented fleet, layout copy)", _fault_space(),
+        recorded("Gearbox faults, folds grouped by turbine (invented fleet, layout copy)", _fault_space(),
                   FAULT_METRICS, n_repeats=1, n_outer=5, n_inner=4, task="classification", seed=1),
-        _recorded("Gearbox faults, repeated row folds ignoring turbines (invented fleet, layout copy)",
+        recorded("Gearbox faults, repeated row folds ignoring turbines (invented fleet, layout copy)",
                   _fault_space(small=True), FAULT_METRICS, n_repeats=2, n_outer=5, n_inner=4,
                   task="classification", seed=2),
-        _recorded("Assay yield (invented enzyme assay, layout copy)", _yield_space(), YIELD_METRICS,
+        recorded("Assay yield (invented enzyme assay, layout copy)", _yield_space(), YIELD_METRICS,
                   n_repeats=1, n_outer=5, n_inner=4, task="regression", seed=3),
     ]
 
@@ -42,13 +42,14 @@ def large():
                                      "max_leaf_nodes": [15, 31]}),
         "random forest": (None, {"max_features": ["sqrt", 0.6], "min_samples_leaf": [3, 10]}),
     }
-    return _recorded("Large design: 3 repeats × 10 outer folds × 6 families (layout check)", space,
+    return recorded("Large design: 3 repeats × 10 outer folds × 6 families (layout check)", space,
                      ["roc_auc", "average_precision", "neg_brier_score"], n_repeats=3, n_outer=10, n_inner=3,
                      task="classification", seed=4)
 
 
-def _recorded(name, space, metrics, *, n_repeats, n_outer, n_inner, task, seed):
-    rng = np.random.default_rng(seed)
+def recorded(name, space, metrics, *, n_repeats, n_outer, n_inner, task, seed, fold_seed=None):
+    """An assessment recorded with seeded scores; the same ``fold_seed`` gives the same outer folds."""
+    rng, folds_rng = np.random.default_rng(seed), np.random.default_rng(seed if fold_seed is None else fold_seed)
     n_samples = 600
     rec = Recorder(name, task=task, metrics=metrics, n_samples=n_samples, dataset="layout copy of the demo design",
                    classes=[0, 1] if task == "classification" else None,
@@ -56,7 +57,7 @@ def _recorded(name, space, metrics, *, n_repeats, n_outer, n_inner, task, seed):
     configs = [(family, params) for family, (_, grid) in space.items() for params in ParameterGrid(grid)]
     base = {f"{family}{sorted(params.items())}": rng.normal() for family, params in configs}
     for r in range(n_repeats):
-        order = rng.permutation(n_samples)
+        order = folds_rng.permutation(n_samples)
         for o in range(n_outer):
             test = np.sort(order[o::n_outer])
             y_true = rng.integers(0, 2, test.size) if task == "classification" else rng.normal(60, 8, test.size)
