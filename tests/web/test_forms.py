@@ -168,3 +168,11 @@ def test_error_pages_that_remain_say_what_to_do_next(client):
     response = client.get("/assessments/00000000-0000-4000-8000-000000000000", headers={"accept": "text/html"})
     assert response.status_code == 404
     assert 'id="next-step"' in response.text and "list of" in response.text and "assessments" in response.text
+
+
+def test_the_save_form_is_there_only_for_the_write_key(client, stored):
+    url = f"/assessments/{stored['first'].uuid}"
+    assert "data-save-form" in client.get(url).text  # the client fixture sends the write key
+    keyless = client.get(url, headers={"authorization": ""}).text
+    assert "data-save-form" not in keyless and 'id="save-needs-write-key"' in keyless
+    assert "needs the write key" in keyless and "data-save-url" not in keyless
