@@ -101,7 +101,18 @@
     this.addPicks();
     var self = this;
     this.part("ensemble-metric").addEventListener("change", function () { self.refresh(); });
-    this.part("save-form").addEventListener("submit", function (event) { event.preventDefault(); self.save(); });
+    // Members read as on the rest of the page: family (with its colour) and short parameter text.
+    this.labels = {};
+    this.hooks.forEach(function (hook) {
+      self.labels[hook.dataset.config] = { family: hook.dataset.family, params: hook.dataset.params || "" };
+    });
+    // The Save form is on the page only for a visitor with the write key.
+    var form = this.part("save-form");
+    if (form) {
+      form.addEventListener("submit", function (event) { event.preventDefault(); self.save(false); });
+      this.part("save-again").addEventListener("click", function () { self.save(true); });
+      this.part("save-cancel").addEventListener("click", function () { self.part("duplicate").hidden = true; });
+    }
     // The draft lives in the query string (?member=...), so a copied URL or a reload shows the same one.
     var known = this.hooks.map(function (hook) { return hook.dataset.config; });
     this.chosen = new URLSearchParams(window.location.search).getAll("member").filter(function (config, i, all) {
@@ -166,6 +177,12 @@
       box.checked = chosen.indexOf(box.value) >= 0;
     });
     this.root.dataset.members = String(chosen.length);
+    var saveButton = this.part("save-button");
+    if (saveButton) {
+      saveButton.disabled = !chosen.length;
+      saveButton.title = chosen.length ? "" : "Tick at least one fold winner first";
+      this.part("duplicate").hidden = true;
+    }
     var query = new URLSearchParams(window.location.search);
     query.delete("member");
     chosen.forEach(function (config) { query.append("member", config); });
@@ -222,8 +239,12 @@
     this.part("comparison").textContent = comparisonText(estimate);
     estimate.member_details.forEach(function (member) {
       var item = element("li");
+      var label = this.labels[member.config] || { family: member.family, params: "" };
+      item.title = member.config;
+      item.dataset.member = member.config;
       item.appendChild(element("span", null, "dot")).style.background = this.colours[member.family] || chartStyle().colours.muted;
-      item.appendChild(element("code", member.config));
+      item.appendChild(element("span", label.family + " "));
+      if (label.params) { item.appendChild(element("code", label.params)); }
       item.appendChild(element("span", " family winner in " + folds(member.n_family_wins) + ", overall in " +
                                folds(member.n_overall_wins), "hint"));
       members.appendChild(item);
@@ -241,19 +262,35 @@
     drawChart(this.part("ensemble-chart"), estimate, this.colours, this.root.dataset.plotlyUrl);
   };
 
-  Builder.prototype.save = function () {
+  // Saving the members of an ensemble already saved asks first ("Save again" or "Cancel").
+  Builder.prototype.save = function (again) {
     var self = this, form = this.part("save-form"), message = this.part("message");
     if (!this.chosen.length) { message.textContent = "Tick at least one fold winner first."; return; }
-    fetch(this.root.dataset.saveUrl, {
-      method: "POST", headers: { "content-type": "application/json", accept: "application/json" },
-      body: JSON.stringify({ name: form.elements.name.value, note: form.elements.note.value,
-                             members: this.chosen, metric: this.part("ensemble-metric").value })
-    }).then(answer).then(function (saved) {
-      message.textContent = "Saved: ";
-      message.appendChild(element("a", saved.name)).href = saved.url;
-      message.appendChild(document.createTextNode(" · "));
-      message.appendChild(element("a", "specification (JSON)")).href = saved.spec_url;
-      self.root.dataset.saved = saved.id;
+    var members = this.chosen.slice().sort().join("\n");
+    var check = again ? Promise.resolve([]) : fetch(this.root.dataset.savedUrl, { headers: { accept: "application/json" } })
+      .then(answer);
+    check.then(function (saved) {
+      var same = saved.filter(function (e) { return e.members.slice().sort().join("\n") === members; });
+      if (same.length) {
+        self.part("duplicate-text").textContent = "An ensemble with exactly these members is already saved (" +
+          same.map(function (e) { return "\u201c" + e.name + "\u201d"; }).join(", ") + "). Save another copy?";
+        self.part("duplicate").hidden = false;
+        self.root.dataset.state = "asking";
+        return null;
+      }
+      self.part("duplicate").hidden = true;
+      return fetch(self.root.dataset.saveUrl, {
+        method: "POST", headers: { "content-type": "application/json", accept: "application/json" },
+        body: JSON.stringify({ name: form.elements.name.value, note: form.elements.note.value,
+                               members: self.chosen, metric: self.part("ensemble-metric").value })
+      }).then(answer).then(function (ensemble) {
+        message.textContent = "Saved: ";
+        message.appendChild(element("a", ensemble.name)).href = ensemble.url;
+        message.appendChild(document.createTextNode(" \u00b7 "));
+        message.appendChild(element("a", "specification (JSON)")).href = ensemble.spec_url;
+        self.root.dataset.saved = ensemble.id;
+        self.root.dataset.state = "ready";
+      });
     }).catch(function (error) { message.textContent = "Not saved: " + error.message; });
   };
 

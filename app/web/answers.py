@@ -78,6 +78,22 @@ class AssessmentAnswer(_Answer):
     family_summary: list[dict[str, Any]]
     n_failures: int
     failures: list[dict[str, Any]] = Field(description="the first failed fits; n_failures counts them all")
+    headline: dict[str, Any] = Field(description="on `metric`: the nested estimate with its headline interval, the "
+                                                 "fold winners' mean best inner score (what a search without an outer "
+                                                 "loop reports) and the mean optimism between them")
+    shipping: dict[str, Any] = Field(description="on the selection metric: the final choice on all rows beside the "
+                                                 "fold winners (the ensemble alternative: /what-to-ship)")
+
+
+class WhatToShip(_Answer):
+    uuid: str
+    final: dict[str, Any] | None = Field(description="the final choice on all rows and how many outer folds chose "
+                                                     "the same configuration, family and parameter values; null "
+                                                     "when the run made no final selection")
+    final_model: bool = Field(description="the final refit on all rows was kept (GET .../final/model)")
+    final_note: str | None
+    ensemble: dict[str, Any] = Field(description="the overall fold winners as one ensemble: its estimate on the "
+                                                 "same outer folds and its paired comparison with the selection")
 
 
 class _ScoreRow(_Answer):
@@ -138,6 +154,10 @@ class PairedComparison(_Answer):
     n: int
     n_missing: int
     mean_diff: Number = Field(description="mean of a − b on scikit-learn's scores: positive favours a")
+    diff_low: Number = Field(description="corrected interval of the mean difference a − b (Nadeau and Bengio's "
+                                         "variance, Student t with n − 1 df): low end")
+    diff_high: Number = Field(description="the same interval's high end")
+    diff_level: float = Field(description="the interval's level")
     corrected_t: Number
     corrected_p: Number
     bayes_a: Number
@@ -152,10 +172,12 @@ class Ranking(_Answer):
     metric: str
     friedman_stat: Number
     friedman_p: Number
-    critical_difference: Number
+    critical_difference: Number = Field(description="Nemenyi's critical difference; null when Friedman's test "
+                                                    "cannot run (two families, or every block tied)")
     n_blocks: int
     n_missing: int
     note: str | None
+    verdict: str = Field(description="the ranking in one sentence")
     mean_ranks: dict[str, Number]
     families: list[dict[str, Any]]
     blocks: list[dict[str, Any]]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import asdict
 from typing import Literal
 
 from fastapi import APIRouter, BackgroundTasks, Query, Request
@@ -24,6 +25,7 @@ from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
 from foldwise.web.push import OPENAPI, PushRoute, stored
 from foldwise.web.serialise import records, to_csv
+from foldwise.web.shipping import shipping_json
 
 # Beside a CSV download, where the file itself has no room for it: how the score column is oriented.
 SCORE_SIGN_HEADER = "x-foldwise-score-sign"
@@ -67,6 +69,7 @@ def assessment_detail_json(reader: ReaderDep, metric: str | None = None):
         "fingerprint": record.fingerprint, "versions": record.versions, "seeds": record.seeds,
         "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": page.estimate,
         "family_summary": page.summary, "n_failures": page.n_failures, "failures": page.failures,
+        "headline": asdict(page.headline), "shipping": shipping_json(page.shipping),
     }
 
 

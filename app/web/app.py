@@ -11,7 +11,7 @@ import foldwise
 from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api, errors, report, sharing
+from foldwise.web import api, errors, live_reports, report, sharing, shipping
 from foldwise.web.assets import app_assets, static_url
 from foldwise.web.charts.base import chart_style
 from foldwise.web.compression import Compressed
@@ -28,6 +28,7 @@ from foldwise.web.pages import (
     index,
     inner_detail,
     interval_method,
+    live_runs,
     optimism,
     paired_comparison,
     ranking,
@@ -64,6 +65,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
     app.include_router(report.router)
+    app.include_router(shipping.router)
     app.include_router(interval_method.router)
     app.include_router(score_distributions.router)
     app.include_router(fold_winners.router)
@@ -75,6 +77,8 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(assessments_compare.router)
     app.include_router(ensembles.router)
     app.include_router(sharing.router)
+    app.include_router(live_runs.router)
+    app.include_router(live_reports.router)
     app.openapi = openapi_of(app, reads_need_key=settings.reads_need_key)
     errors.install(app, templates)
     app.add_middleware(Guard, keys=keys, reads_need_key=settings.reads_need_key,

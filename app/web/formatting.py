@@ -6,6 +6,7 @@ import math
 
 from markupsafe import Markup
 
+from foldwise.stats.paired import probability_text
 from foldwise.web.metric_display import metric_display
 
 CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
@@ -16,6 +17,14 @@ def score(value, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "–"
     return f"{value:.{digits}f}"
+
+
+def probability(value) -> str:
+    """A posterior probability as the comparison's verdict writes it (``probability_text``), so card and
+    sentence agree digit for digit."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "–"
+    return probability_text(value)
 
 
 def shown(value, metric: str, digits: int = 3) -> str:
@@ -56,5 +65,6 @@ def json_script(text: str) -> Markup:
     return Markup(escaped.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
 
 
-FILTERS = {"score": score, "shown": shown, "shown_span": shown_span, "params_text": params_text, "seconds": seconds,
+FILTERS = {"score": score, "probability": probability, "shown": shown, "shown_span": shown_span,
+           "params_text": params_text, "seconds": seconds,
            "json_script": json_script}

@@ -6,6 +6,7 @@ import numpy as np
 import plotly.graph_objects as go
 from scipy import stats
 
+from foldwise.stats.paired import probability_text
 from foldwise.web.charts.base import INK, MUTED, figure_json, styled
 from foldwise.web.metric_display import metric_display
 
@@ -78,8 +79,9 @@ def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colou
     return figure_json(figure)
 
 
-def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str, str]) -> str:
-    """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank."""
+def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: dict[str, str]) -> str:
+    """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank; no CD
+    (None) when Friedman's test could not run, since Nemenyi's comparisons follow only from it."""
     order = sorted(mean_ranks, key=mean_ranks.get)
     best, k = mean_ranks[order[0]], len(order)
     figure = go.Figure(go.Scatter(
@@ -87,14 +89,15 @@ def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str
         marker={"size": 14, "color": [colours[family] for family in order]},
         text=[f"{mean_ranks[family]:.2f}" for family in order], textposition="middle right",
         hovertemplate="%{y}: mean rank %{x:.3f}<extra></extra>"))
-    figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
-    for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
-        bar = x0 != x1
-        figure.add_shape(type="line", xref="x", yref="paper", x0=x0, x1=x1, y0=1.06 if bar else 1.03,
-                         y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
-    figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
-                          text=f"  CD = {critical_difference:.2f}", showarrow=False)
-    figure.update_xaxes(range=[0.6, max(k, 1 + critical_difference) + 0.5], dtick=1)
+    if critical_difference is not None:
+        figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
+        for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
+            bar = x0 != x1
+            figure.add_shape(type="line", xref="x", yref="paper", x0=x0, x1=x1, y0=1.06 if bar else 1.03,
+                             y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
+        figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
+                              text=f"  CD = {critical_difference:.2f}", showarrow=False)
+    figure.update_xaxes(range=[0.6, max(k, 1 + (critical_difference or 0)) + 0.5], dtick=1)
     figure.update_yaxes(type="category", autorange="reversed")
     styled(figure, x_title="mean rank over the outer folds (1 = best)", height=120 + 48 * k)
     figure.update_layout(margin={"t": 50, "l": 120})
@@ -179,12 +182,7 @@ def _short(name: str, limit: int = 28) -> str:
 
 
 def _probability(p: float) -> str:
-    # Three decimals, but never printed as 0 or 1 unless it is exactly that.
-    if 0 < p < 0.001:
-        return "< 0.001"
-    if 0.999 < p < 1:
-        return "> 0.999"
-    return f"{p:.3f}"
+    return probability_text(p)  # as the verdict and the cards write it
 
 
 def _gap(high: float | None, low: float | None) -> float | None:

@@ -14,6 +14,7 @@ from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.stability import NOT_SET, parameter_strip_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import records
@@ -122,8 +123,8 @@ def _key(value) -> str:
 @router.get("/assessments/{uuid}/fold-winners", name="fold_winners", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def fold_winners(request: Request, reader: ReaderDep, metric: str | None = None):
-    context = fold_winners_context(reader, metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "fold_winners.html", {"page": context})
+    return form_page(request, "fold_winners.html", lambda metric: fold_winners_context(reader, metric=metric),
+                     {"metric": metric})
 
 
 @router.get("/api/assessments/{uuid}/fold-winners", name="fold_winners_json",
