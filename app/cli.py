@@ -64,9 +64,9 @@ def _parser() -> argparse.ArgumentParser:
     demo.add_argument("--fresh", action="store_true", help="compute again even if the store has the demo")
     demo.add_argument("--n-jobs", type=int, default=2, help="parallel fits (default 2)")
 
-    resend = command("resend", _resend, "deliver assessments spooled when a server was unreachable",
+    resend = command("resend", _resend, "deliver assessments spooled when a server was unreachable or failing",
                      "Send every assessment a push left in the spool folder because its server could not be "
-                     "reached, and remove those that arrived.")
+                     "reached or answered a server error, and remove those that arrived.")
     resend.add_argument("--spool", help="spool folder (default: $FOLDWISE_SPOOL or ~/.local/state/foldwise/spool)")
     resend.add_argument("--url", help="send to this server instead of the one each was meant for")
 

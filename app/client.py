@@ -31,6 +31,14 @@ class PushRejected(Exception):
         self.status, self.detail = status, detail
 
 
+class ServerFailed(Exception):
+    """The server was reached but failed on the push (5xx) every time it was tried: worth trying later."""
+
+    def __init__(self, status: int, detail):
+        super().__init__(f"the server failed on the assessment ({status}): {detail}")
+        self.status, self.detail = status, detail
+
+
 def save(payload: AssessmentPayload, target: str) -> bool:
     """Write into the store at ``target`` (a path or SQLAlchemy URL); True when newly stored, False when the
     same assessment (uuid and content) is already there.
@@ -54,16 +62,19 @@ def push(payload: AssessmentPayload, url: str, *, token: str | None = None, retr
     """POST the assessment to a foldwise server at ``url`` with a write key (``token``, else ``$FOLDWISE_KEY``,
     else the key file of this machine).
 
-    Returns ``"created"``, ``"already stored"`` or, when the server could not be reached after
-    ``retries`` attempts, ``"spooled"`` (with a warning naming the spool file).
+    Returns ``"created"``, ``"already stored"`` or ``"spooled"`` (with a warning naming the spool file and
+    why) when the server could not be reached, or answered a server error (5xx), on all ``retries``
+    attempts. A refusal (4xx) raises ``PushRejected`` naming why, and is not spooled: the same payload
+    would be refused again.
     """
     try:
         return _send(packed_body(payload), url, content_type=CONTENT_TYPE, token=token, retries=retries,
                      backoff=backoff, timeout=timeout)
-    except httpx.TransportError as error:
+    except (httpx.TransportError, ServerFailed) as error:
         path = _spool(payload.packed_json(), url, payload.uuid, spool_dir)  # JSON: a file to read and resend
-        warnings.warn(f"could not reach {url} ({error}); kept in {path}, deliver it with `foldwise resend`",
-                      RuntimeWarning, stacklevel=2)
+        reason = f"could not reach {url} ({error})" if isinstance(error, httpx.TransportError) else str(error)
+        warnings.warn(f"{reason}; kept in {path}, deliver it with `foldwise resend`", RuntimeWarning,
+                      stacklevel=2)
         return SPOOLED
 
 
@@ -71,7 +82,8 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
            retries: int = 3, backoff: float = 0.5) -> list[tuple[str, str]]:
     """Deliver every spooled assessment (to ``url``, or to where each was first sent).
 
-    Returns (file name, outcome) pairs; a delivered file is removed, an undeliverable one stays.
+    Returns (file name, outcome) pairs; a delivered file is removed, an undeliverable one stays, its
+    outcome saying why: still unreachable, a server error, or the server's refusal.
     """
     outcomes = []
     for path in sorted(_spool_dir(spool_dir).glob("*.json")):
@@ -82,7 +94,7 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
         except httpx.TransportError as error:
             outcomes.append((path.name, f"still unreachable: {error}"))
             continue
-        except PushRejected as error:
+        except (ServerFailed, PushRejected) as error:
             outcomes.append((path.name, str(error)))
             continue
         path.unlink()
@@ -92,9 +104,10 @@ def resend(*, spool_dir: str | Path | None = None, url: str | None = None, token
 
 def _send(parts: list[bytes], url: str, *, content_type: str = "application/json", token, retries, backoff,
           timeout) -> str:
-    """POST the body made of ``parts``; the outcome, or the last transport error once retries ran out."""
+    """POST the body made of ``parts``; the outcome, else the last transport error or ``ServerFailed`` once
+    retries ran out, or ``PushRejected`` at once."""
     headers = {"content-type": content_type, "content-length": str(sum(map(len, parts)))}
-    token = token or _write_key()
+    token = token or write_key()
     if token:
         headers["authorization"] = f"Bearer {token}"
     endpoint = url.rstrip("/") + "/api/assessments"
@@ -112,7 +125,7 @@ def _send(parts: list[bytes], url: str, *, content_type: str = "application/json
             time.sleep(backoff * 2 ** attempt)
             continue
         if response.status_code >= 500:
-            raise httpx.TransportError(f"server error {response.status_code}")
+            raise ServerFailed(response.status_code, _detail(response))
         raise PushRejected(response.status_code, _detail(response))
     raise ValueError(f"retries must be at least 1, got {retries}")
 
@@ -141,7 +154,7 @@ def _pieces(parts: list[bytes]):
         yield b"".join(held)
 
 
-def _write_key() -> str | None:
+def write_key() -> str | None:
     """$FOLDWISE_KEY, else the write key in this machine's key file (a server on this machine made it)."""
     if os.environ.get("FOLDWISE_KEY"):
         return os.environ["FOLDWISE_KEY"]

@@ -66,3 +66,51 @@ def test_a_refused_payload_raises_and_is_not_spooled(tmp_path, live_server, smal
     with pytest.raises(PushRejected, match="name"):
         push(bad, live_server.url, spool_dir=tmp_path / "spool")
     assert not (tmp_path / "spool").exists()
+
+
+@pytest.fixture
+def failing_server():
+    """A real HTTP server on loopback that reads each request and answers 503, as a proxy in front of a
+    foldwise server that is restarting would (the standard library's http.server); counts the requests."""
+    import json
+    import threading
+    from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
+
+    seen = []
+
+    class Failing(BaseHTTPRequestHandler):
+        def do_POST(self):
+            self.rfile.read(int(self.headers.get("content-length", 0)))
+            seen.append(self.path)
+            body = json.dumps({"detail": [{"loc": [], "msg": "the store is being restarted",
+                                           "type": "server_error"}]}).encode()
+            self.send_response(503)
+            self.send_header("content-type", "application/json")
+            self.send_header("content-length", str(len(body)))
+            self.end_headers()
+            self.wfile.write(body)
+
+        def log_message(self, *args):  # keep the test output quiet
+            pass
+
+    server = ThreadingHTTPServer(("127.0.0.1", 0), Failing)
+    thread = threading.Thread(target=server.serve_forever, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{server.server_address[1]}", seen
+    server.shutdown()
+    server.server_close()
+
+
+def test_a_server_error_is_retried_then_spooled_naming_it_and_resend_says_so(tmp_path, failing_server,
+                                                                              live_server, small_assessment):
+    url, seen = failing_server
+    payload = small_assessment.payload.model_copy(update={"name": "server error then resent", "uuid": uuid4()})
+    spool = tmp_path / "spool"
+    with pytest.warns(RuntimeWarning, match=r"failed on the assessment \(503\).*being restarted.*foldwise resend"):
+        assert push(payload, url, spool_dir=spool, retries=3, backoff=0.01) == SPOOLED
+    assert len(seen) == 3  # retried before spooling
+    outcome = resend(spool_dir=spool, retries=1)[0][1]
+    # A server that answered is not "unreachable": the outcome names its error, and the file stays.
+    assert "unreachable" not in outcome and "503" in outcome and "being restarted" in outcome
+    assert len(list(spool.glob("*.json"))) == 1
+    assert resend(spool_dir=spool, url=live_server.url) == [(f"{payload.uuid}.json", CREATED)]

@@ -6,6 +6,7 @@ import sys
 import warnings
 from collections import Counter
 from collections.abc import Iterable
+from uuid import UUID, uuid4
 
 import joblib
 import numpy as np
@@ -24,6 +25,7 @@ from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.journal import MODES, Journal, fingerprint
 from foldwise.runner.keeping import check_trusted, keepable_families
+from foldwise.runner.live import DEFAULT_INTERVAL, LiveReporter
 from foldwise.runner.metadata import Routed, route
 from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
@@ -37,7 +39,7 @@ from foldwise.runner.whole_search import nested_whole_search
 def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, params=None, error_score=np.nan,
               n_jobs=None, progress=True, name=None, dataset=None, refit_all=True, keep_predictions=True,
               keep_models=False, trusted=None, grow=True, final=False, share_prefixes=True, checkpoint=None,
-              checkpoint_mode="resume") -> Assessment:
+              checkpoint_mode="resume", live=None, live_token=None, live_interval=DEFAULT_INTERVAL) -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
@@ -114,6 +116,17 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         journal of a different run (data, grid, scorer, splits, versions or options) is refused.
     checkpoint_mode : {"resume", "overwrite"}
         Resume from the journal at ``checkpoint`` (default), or start it afresh.
+    live : str, optional
+        The URL of a foldwise server to watch the run on (see ``foldwise.runner.live``): it is told that the
+        run started, then every ``live_interval`` seconds how many fits are done of how many, the time per
+        fit and the projected end, and each outer fold's winners and outer scores as the fold completes. At
+        the end the assessment is pushed there (``foldwise.push``; spooled if the server cannot be reached)
+        and replaces the live view. A server that cannot be reached never stops the run; the next report
+        catches it up. With ``checkpoint``, a resumed run goes on under its first uuid.
+    live_token : str, optional
+        The write key for ``live``, as ``push`` takes it (else ``$FOLDWISE_KEY``, else this machine's key file).
+    live_interval : float
+        Seconds between two reports to ``live`` (default 5).
     """
     _check_lengths(X, y, groups)
     trusted = check_trusted(trusted)
@@ -129,9 +142,9 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
             raise ValueError(f"keep_models=True needs a space foldwise expands into configurations; a "
                              f"{kind} is fitted whole on each outer fold, so pass a dict "
                              f"{{family: (estimator, grid)}} or a GridSearchCV / RandomizedSearchCV")
-        if checkpoint is not None:
-            raise ValueError(f"checkpoint needs a space foldwise expands into configurations; a "
-                             f"{kind} is fitted whole on each outer fold")
+        if checkpoint is not None or live is not None:
+            raise ValueError(f"{'checkpoint' if checkpoint is not None else 'live'} needs a space foldwise expands "
+                             f"into configurations; a {kind} is fitted whole on each outer fold")
         if params or not (isinstance(error_score, float) and np.isnan(error_score)):
             raise ValueError(f"params= and error_score= are not passed into a {kind} fitted whole; "
                              f"set error_score on the search itself, or pass a dict space or a GridSearchCV")
@@ -162,43 +175,32 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
                  "params": None if not params else joblib.hash(params, hash_name="sha1")}), mode=checkpoint_mode)
     shared = shared_steps(resolved) if share_prefixes else {}
     shared = {c: key for c, key in shared.items() if routed.families[resolved.candidates[c].family].is_empty}
-    runner = _Runner(resolved, chains, shared, *data_for_workers(X, y), scorers, routed, classes, journal)
+    # A resumed run goes on reporting under its first uuid; a run that finished leaves the next one a new uuid.
+    run_uuid = journal.run_uuid(str(uuid4())) if journal is not None and live is not None else str(uuid4())
+    reporter = None if live is None else LiveReporter(
+        live, run_uuid, token=live_token, interval=live_interval, name=name or "nested cross-validation",
+        dataset=dataset, task="classification" if classifier else "regression", metrics=metrics, space=resolved,
+        layout=layout, refit_all=refit_all)
+    runner = _Runner(resolved, chains, shared, *data_for_workers(X, y), scorers, routed, classes, journal, reporter)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
-    with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
-            Parallel(n_jobs=n_jobs, return_as="generator_unordered",
-                     # With a journal, one job per dispatch: a job's fits are journaled as soon as it ends,
-                     # not when a batch of quick jobs does, so a killed run loses only what was running.
-                     batch_size=1 if journal is not None else "auto") as pool:
-        first = [*_inner_tasks(layout, n_configs)]
-        outer_at_once = refit_all and not keep_models
-        if outer_at_once:
-            first += _outer_tasks(layout, range(n_configs), keep_predictions)
-        results = runner.run(pool, first, bar)
-        choices = _select(layout, resolved, results, metrics[0])
-        if not outer_at_once:
-            wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
-            kept = {(s, c) for s, c in wanted if resolved.candidates[c].family in keepable}
-            pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
-                else sorted(wanted)
-            bar.total = len(first) + len(pairs)
-            bar.refresh()
-            results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions,
-                                                             kept), bar))
-
-        if final:
-            splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
-            tasks = final_tasks(splits, n_configs)
-            bar.total += len(tasks)
-            bar.refresh()
-            ran = runner.run(pool, tasks, bar)
-            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y,
-                                     fit_params={family: routed.families[family].fit for family in resolved.estimators},
-                                     raises=scorers.raises)
-            results.update(ran)
-
+    if reporter is not None:
+        reporter.start(n_fits)
+    try:
+        results, choices, chosen = _run_all(runner, layout, resolved, metrics, n_fits, n_jobs=n_jobs,
+                                            progress=progress, name=name, journal=journal, refit_all=refit_all,
+                                            keep_models=keep_models, keepable=keepable,
+                                            keep_predictions=keep_predictions,
+                                            final=final, X=X, y=y, inner=inner, classifier=classifier,
+                                            routed=routed, scorers=scorers)
+    except BaseException as error:
+        if reporter is not None:
+            reporter.end("stopped", reason="interrupted (Ctrl-C)" if isinstance(error, KeyboardInterrupt)
+                         else f"{type(error).__name__}: {error}")
+        raise
     if journal is not None:
+        journal.forget_run_uuid()
         journal.close()
     _warn_failures(list(results.values()), _failed_folds(layout, choices))
     for key in [key for key in results if key[0] == "final"]:
@@ -209,7 +211,64 @@ def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, pa
         refit_all=refit_all, n_features=_n_features(X),
         grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom,
         trusted=trusted)
-    return Assessment(payload.model_copy(update={"final": chosen}) if final else payload)
+    payload = payload.model_copy(update={"uuid": UUID(run_uuid), **({"final": chosen} if final else {})})
+    if reporter is not None:
+        reporter.end("done")
+        _push_finished(payload, live, live_token)
+    return Assessment(payload)
+
+
+def _run_all(runner, layout, resolved, metrics, n_fits, *, n_jobs, progress, name, journal, refit_all, keep_models,
+             keepable, keep_predictions, final, X, y, inner, classifier, routed, scorers):
+    """Every fit of the run in the one pool: the inner folds (with the outer refits when they need not wait),
+    the fold winners, the outer refits that waited for them, and the final selection."""
+    n_configs, chosen = len(resolved.candidates), None
+    with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
+            Parallel(n_jobs=n_jobs, return_as="generator_unordered",
+                     # With a journal, one job per dispatch: a job's fits are journaled as soon as it ends,
+                     # not when a batch of quick jobs does, so a killed run loses only what was running.
+                     batch_size=1 if journal is not None else "auto") as pool:
+        first = [*_inner_tasks(layout, n_configs)]
+        outer_at_once = refit_all and not keep_models
+        if outer_at_once:  # fold by fold, so that outer folds complete one after another, not all at the end
+            outer = _outer_tasks(layout, range(n_configs), keep_predictions)
+            first = sorted(first + outer, key=lambda task: task.key[1])
+        results = runner.run(pool, first, bar)
+        choices = _select(layout, resolved, results, metrics[0])
+        if not outer_at_once:
+            wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
+            kept = {(s, c) for s, c in wanted if resolved.candidates[c].family in keepable}
+            pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
+                else sorted(wanted)
+            bar.total = len(first) + len(pairs)
+            bar.refresh()
+            runner.total(bar.total)
+            results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions, kept), bar))
+
+        if final:
+            splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
+            tasks = final_tasks(splits, n_configs)
+            bar.total += len(tasks)
+            bar.refresh()
+            runner.total(bar.total)
+            ran = runner.run(pool, tasks, bar)
+            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y,
+                                     fit_params={family: routed.families[family].fit for family in resolved.estimators},
+                                     raises=scorers.raises)
+            results.update(ran)
+    return results, choices, chosen
+
+
+def _push_finished(payload, url: str, token: str | None) -> None:
+    """Push the finished assessment to the live server, where it replaces the live view; a refusal is warned
+    about, never raised: the assessment is returned all the same, to push or save again."""
+    from foldwise.client import PushRejected, push
+
+    try:
+        push(payload, url, token=token)
+    except PushRejected as error:
+        warnings.warn(f"{error}; the assessment is returned all the same: push or save it again", RuntimeWarning,
+                      stacklevel=3)
 
 
 class _Runner:
@@ -217,7 +276,7 @@ class _Runner:
     a pipeline's shared leading steps), and journals each job's results as they arrive."""
 
     def __init__(self, space: Space, chains: list[list[int]], shared: dict[int, tuple], X, y, scoring: Scoring,
-                 routed: Routed, classes, journal: Journal | None = None):
+                 routed: Routed, classes, journal: Journal | None = None, reporter: LiveReporter | None = None):
         self.space, self.X, self.y = space, X, y
         self.scoring, self.routed, self.classes = scoring, routed, classes
         self.chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
@@ -226,7 +285,11 @@ class _Runner:
         self.group_of = {c: ("chain", n) for c, n in self.chain_of.items()}
         self.group_of.update((c, ("prefix", n)) for n, group in enumerate(prefix_groups(space, shared, self.chain_of))
                              for c in group)
-        self.journal = journal
+        self.journal, self.reporter = journal, reporter
+
+    def total(self, n_fits: int) -> None:
+        if self.reporter is not None:
+            self.reporter.fits_total = n_fits
 
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
         results = {}
@@ -234,6 +297,8 @@ class _Runner:
             results = {task.key: found for task in tasks if (found := self.journal.result_for(task)) is not None}
             tasks = [task for task in tasks if task.key not in results]
             bar.update(len(results))
+            if self.reporter is not None and results:
+                self.reporter.arrived(list(results.values()), resumed=True)
         try:
             for done in pool(self._job(job) for job in self._jobs(tasks)):
                 done = done if isinstance(done, list) else [done]  # a job's results, or one fit's
@@ -241,6 +306,8 @@ class _Runner:
                     self.journal.record(done)
                 results.update((result.key, result) for result in done)
                 bar.update(len(done))
+                if self.reporter is not None:
+                    self.reporter.arrived(done)
         except KeyboardInterrupt:  # the pool stops its workers as the exception leaves it
             if self.journal is not None:
                 print(f"\nInterrupted: {self.journal.count()} finished fits are kept in the journal "

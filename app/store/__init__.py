@@ -15,20 +15,24 @@ from foldwise.store.ensembles import (
     insert_ensemble,
 )
 from foldwise.store.lookup import AssessmentNotFound
-from foldwise.store.queries import (
-    AssessmentRecord,
+from foldwise.store.queries import AssessmentRecord, list_assessments
+from foldwise.store.reader import (
+    AssessmentReader,
+    StoreReader,
     failures_for,
     family_winners_for,
     fold_sizes_for,
     get_assessment,
     inner_scores_for,
-    list_assessments,
     outer_scores_for,
+    read_assessment,
     winners_for,
 )
 from foldwise.store.restore import (
+    StoredFinal,
     StoredPrediction,
     final_model_for,
+    final_selection_for,
     fold_targets_for,
     load_payload,
     outer_folds_for,
@@ -38,10 +42,13 @@ from foldwise.store.writes import UuidConflict, delete_assessment, insert_assess
 
 __all__ = [
     "AssessmentNotFound",
+    "AssessmentReader",
     "AssessmentRecord",
+    "StoreReader",
     "UuidConflict",
     "EnsembleRecord",
     "StoredModel",
+    "StoredFinal",
     "StoredPrediction",
     "checkpoint",
     "db_url_from",
@@ -66,9 +73,11 @@ __all__ = [
     "list_assessments",
     "load_payload",
     "final_model_for",
+    "final_selection_for",
     "make_engine",
     "outer_folds_for",
     "outer_scores_for",
     "predictions_for",
+    "read_assessment",
     "winners_for",
 ]

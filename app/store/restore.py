@@ -10,6 +10,7 @@ from sqlalchemy import Connection, Engine, Row, Table, and_, select
 
 from foldwise.payload import (
     AssessmentPayload,
+    Configuration,
     Failure,
     Family,
     FinalSelection,
@@ -22,7 +23,7 @@ from foldwise.payload import (
 )
 from foldwise.store import tables
 from foldwise.store.lookup import find_assessment, require_assessment
-from foldwise.store.queries import configurations_of, record_from
+from foldwise.store.queries import AssessmentRecord, configurations_of, record_from
 
 
 @dataclass(frozen=True, eq=False)
@@ -45,31 +46,41 @@ def outer_folds_for(engine: Engine, uuid: str) -> list[OuterFold]:
 def fold_targets_for(engine: Engine, uuid: str) -> list[tuple[int, int, list | None]]:
     """(repeat, outer_fold, true targets of its test rows or None) per outer fold, in payload order: what
     scoring predictions needs of the folds, without their test indices."""
-    o = tables.outer_folds
     with engine.connect() as connection:
-        row = require_assessment(connection, uuid)
-        return [tuple(fold) for fold in connection.execute(
-            select(o.c.repeat, o.c.outer_fold, o.c.y_true).where(o.c.assessment_id == row.id)
-            .order_by(o.c.position)).all()]
+        return fold_targets_in(connection, require_assessment(connection, uuid).id)
+
+
+def fold_targets_in(connection: Connection, assessment_id: int) -> list[tuple[int, int, list | None]]:
+    o = tables.outer_folds
+    return [tuple(fold) for fold in connection.execute(
+        select(o.c.repeat, o.c.outer_fold, o.c.y_true).where(o.c.assessment_id == assessment_id)
+        .order_by(o.c.position)).all()]
 
 
 def predictions_for(engine: Engine, uuid: str, *, configs: list[str] | None = None) -> list[StoredPrediction]:
     """The outer-test predictions in payload order, of every configuration or of the ids in ``configs``."""
-    p, c = tables.predictions, tables.configurations
-    query = (select(p.c.position, p.c.repeat, p.c.outer_fold, c.c.config_id, p.c.kind, p.c.n_columns, p.c.data)
-             .join(c, and_(c.c.assessment_id == p.c.assessment_id, c.c.position == p.c.config)))
     with engine.connect() as connection:
         row = require_assessment(connection, uuid)
-        query = query.where(p.c.assessment_id == row.id)
-        if configs is None:
-            query = query.order_by(p.c.position)
-        else:
-            _refuse_unknown_configs(connection, row, configs)
-            # Ordered here, not by the query: ORDER BY position would lead SQLite to walk every block of
-            # the assessment in that order rather than take the few it needs by the configuration index.
-            query = query.where(p.c.config.in_(select(c.c.position).where(c.c.assessment_id == row.id,
-                                                                            c.c.config_id.in_(configs))))
-        rows = connection.execute(query).all()
+        return predictions_in(connection, row, configurations_of(connection, row.id), configs)
+
+
+def predictions_in(connection: Connection, row: Row, configurations: list[Configuration],
+                   configs: list[str] | None) -> list[StoredPrediction]:
+    """``predictions_for`` on an open connection, for the assessment ``row`` with these configurations."""
+    p, c = tables.predictions, tables.configurations
+    query = (select(p.c.position, p.c.repeat, p.c.outer_fold, c.c.config_id, p.c.kind, p.c.n_columns, p.c.data)
+             .join(c, and_(c.c.assessment_id == p.c.assessment_id, c.c.position == p.c.config))
+             .where(p.c.assessment_id == row.id))
+    if configs is None:
+        query = query.order_by(p.c.position)
+    else:
+        _refuse_unknown_configs(row, configurations, configs)
+        # Ordered here, not by the query: ORDER BY position would lead SQLite to walk every block of
+        # the assessment in that order rather than take the few it needs by the configuration index.
+        wanted = set(configs)
+        query = query.where(p.c.config.in_([position for position, config in enumerate(configurations)
+                                            if config.id in wanted]))
+    rows = connection.execute(query).all()
     if configs is not None:
         rows.sort(key=lambda stored: stored.position)
     return [StoredPrediction(repeat=r, outer_fold=o, config=config, kind=kind, values=_floats(data, n_columns))
@@ -80,11 +91,11 @@ def load_payload(engine: Engine, uuid: str) -> AssessmentPayload | None:
     """The payload exactly as it was stored, or None when the store has no assessment with that uuid."""
     with engine.connect() as connection:
         row = find_assessment(connection, uuid)
-        return None if row is None else _payload(connection, row)
+        return None if row is None else payload_in(connection, row, record_from(connection, row))
 
 
-def _payload(connection: Connection, row: Row) -> AssessmentPayload:
-    record = record_from(connection, row)
+def payload_in(connection: Connection, row: Row, record: AssessmentRecord) -> AssessmentPayload:
+    """``load_payload`` on an open connection, for the assessment ``row`` whose record is ``record``."""
     ch, p, f, m = tables.fold_choices, tables.predictions, tables.failures, tables.fitted_models
 
     def rows(table: Table, names: list[str], *where) -> list[Row]:
@@ -116,12 +127,36 @@ def _final(connection: Connection, assessment_id: int) -> FinalSelection | None:
     return None if found is None else FinalSelection(**found.selection, model_skops=_text(found.model))
 
 
+@dataclass(frozen=True)
+class StoredFinal:
+    """The final selection as stored, without its model file (read that with ``final_model_for``)."""
+
+    selection: FinalSelection  # model_skops is None here
+    has_model: bool  # the chosen configuration's refit on every row was kept
+
+
+def final_selection_for(engine: Engine, uuid: str) -> StoredFinal | None:
+    """The final selection on every row, or None when the run made none; the model's bytes stay in the store."""
+    with engine.connect() as connection:
+        return final_selection_in(connection, require_assessment(connection, uuid).id)
+
+
+def final_selection_in(connection: Connection, assessment_id: int) -> StoredFinal | None:
+    f = tables.final_selections
+    found = connection.execute(select(f.c.selection, f.c.model.is_not(None).label("has_model"))
+                               .where(f.c.assessment_id == assessment_id)).first()
+    return None if found is None else StoredFinal(FinalSelection(**found.selection), bool(found.has_model))
+
+
 def final_model_for(engine: Engine, uuid: str) -> bytes | None:
     """The skops file of the final selection's refit model; None when the run made none or kept none."""
-    f = tables.final_selections
     with engine.connect() as connection:
-        row = require_assessment(connection, uuid)
-        return connection.scalar(select(f.c.model).where(f.c.assessment_id == row.id))
+        return final_model_in(connection, require_assessment(connection, uuid).id)
+
+
+def final_model_in(connection: Connection, assessment_id: int) -> bytes | None:
+    f = tables.final_selections
+    return connection.scalar(select(f.c.model).where(f.c.assessment_id == assessment_id))
 
 
 def _families(connection: Connection, assessment_id: int) -> list[Family]:
@@ -161,8 +196,8 @@ def _floats(data: bytes, n_columns: int) -> np.ndarray:
     return np.frombuffer(data, dtype="<f8").astype(np.float64).reshape(-1, n_columns)
 
 
-def _refuse_unknown_configs(connection: Connection, row: Row, configs: list[str]) -> None:
-    known = {config.id for config in configurations_of(connection, row.id)}
+def _refuse_unknown_configs(row: Row, configurations: list[Configuration], configs: list[str]) -> None:
+    known = {config.id for config in configurations}
     unknown = [config for config in configs if config not in known]
     if unknown:
         raise ValueError(f"configs {unknown} are not configurations of assessment {row.uuid}; "

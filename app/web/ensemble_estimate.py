@@ -15,7 +15,7 @@ from fastapi import HTTPException
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, fold_sizes_for, fold_targets_for, outer_scores_for, predictions_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.lookup import metric_or_422
 from foldwise.web.serialise import plain
@@ -23,22 +23,23 @@ from foldwise.web.serialise import plain
 _LISTED = 12  # configuration ids named in an error message before "and N more"
 
 
-def ensemble_estimate(engine, record: AssessmentRecord, members: list[str], *, metric: str | None,
+def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: str | None,
                       rope: float = 0.01) -> dict:
     """The ensemble's outer-fold scores and summary, the rule its members follow, and the comparison."""
     # scikit-learn is imported only when an ensemble is scored, so the server starts without it.
     from foldwise.stats.ensembles import ESTIMATE_CAUTION, VOTING_TEXT, score_ensemble
 
+    record = reader.record
     _check_members(record, members)
     if metric is not None:
         metric_or_422(record, metric, loc=("body", "metric"))
     design = record.design
-    scored = score_ensemble(_fold_members(engine, record, members), task=design.task, metrics=design.metrics,
+    scored = score_ensemble(_fold_members(reader, members), task=design.task, metrics=design.metrics,
                             classes=design.classes)
     metric, metric_note = _metric(design.metrics, scored.unavailable, metric)
     # Every view below reads this one metric, and only the rows of fold winners and of the members.
-    outer = outer_scores_for(engine, record.uuid, metric=metric, winners="either", configs=members)
-    sizes = fold_sizes_for(engine, record.uuid)
+    outer = reader.outer(metric=metric, winners="either", configs=members)
+    sizes = reader.fold_sizes()
     mine = (scored.scores[scored.scores["metric"] == metric].set_index(["repeat", "outer_fold"])["score"]
             .reindex(sizes.index))
     selection = overall_fold_scores(outer, metric, folds=sizes.index)
@@ -85,17 +86,16 @@ def _check_members(record: AssessmentRecord, members: list[str]) -> None:
                                  f"configuration ids are {known[:_LISTED]}{more}")
 
 
-def _fold_members(engine, record: AssessmentRecord, members: list[str]) -> list:
+def _fold_members(reader: AssessmentReader, members: list[str]) -> list:
     from foldwise.stats.ensembles import FoldMembers
 
-    stored = {(p.repeat, p.outer_fold, p.config): (p.kind, p.values)
-              for p in predictions_for(engine, record.uuid, configs=members)}
+    stored = {(p.repeat, p.outer_fold, p.config): (p.kind, p.values) for p in reader.predictions(members)}
     without = [member for member in members if not any(key[2] == member for key in stored)]
     if without:
         raise HTTPException(422, f"members {without} have no stored outer-test predictions (the run kept "
                                  f"none, or every outer fit of them failed), so no ensemble with them can be "
                                  f"scored")
-    folds = sorted(fold_targets_for(engine, record.uuid))
+    folds = sorted(reader.fold_targets())
     if any(y_true is None for _, _, y_true in folds):
         raise HTTPException(422, "this assessment stored no true targets of its outer test folds, so an "
                                  "ensemble cannot be scored from its predictions")

@@ -9,6 +9,7 @@ with a request id and answered with a 500 naming that id, so a report can be mat
 
 from __future__ import annotations
 
+import json
 import logging
 import secrets
 from collections.abc import Sequence
@@ -18,6 +19,8 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field
 from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from foldwise.store.lookup import AssessmentNotFound
 
 log = logging.getLogger("foldwise.web")
 
@@ -95,18 +98,20 @@ def install(app: FastAPI, templates) -> None:
             return page(request, 422, "; ".join(_located(item) for item in detail))
         return JSONResponse({"detail": detail}, status_code=422)
 
+    @app.exception_handler(AssessmentNotFound)
+    async def gone(request: Request, error: AssessmentNotFound):
+        # An assessment deleted between finding it and reading it, wherever a read noticed: a 404.
+        return await http_error(request, refusal(404, str(error), loc=["path", "uuid"]))
+
     @app.exception_handler(StarletteHTTPException)
     async def http_error(request: Request, error: StarletteHTTPException):
         cause = error.__cause__
         if error.status_code == 400 and cause is not None:
             # FastAPI's answer to a JSON body json.loads could not read: a 422 naming the body, as for
             # any other body that is not the JSON the route takes.
-            reason = (f"byte {cause.start} is not UTF-8" if isinstance(cause, UnicodeDecodeError)
-                      else "arrays or objects nest too deeply" if isinstance(cause, RecursionError)
-                      else str(cause).split(";")[0])
-            return JSONResponse({"detail": [entry(f"the body is not JSON this server can read ({reason}); "
-                                                  "send UTF-8 JSON", loc=["body"], type="json_invalid")]},
-                                status_code=422)
+            return JSONResponse({"detail": [entry(f"the body is not JSON this server can read "
+                                                  f"({unreadable_reason(cause)}); send UTF-8 JSON", loc=["body"],
+                                                  type="json_invalid")]}, status_code=422)
         detail = _entries(error.status_code, error.detail, request.method)
         headers = getattr(error, "headers", None)
         if _wants_page(request):
@@ -114,6 +119,17 @@ def install(app: FastAPI, templates) -> None:
         return JSONResponse({"detail": detail}, status_code=error.status_code, headers=headers)
 
     app.add_middleware(ServerErrors, page=page)
+
+
+def unreadable_reason(cause: BaseException) -> str:
+    """Why a body could not be read as JSON, from the kind of exception the reading raised."""
+    if isinstance(cause, UnicodeDecodeError):
+        return f"byte {cause.start} is not UTF-8"
+    if isinstance(cause, RecursionError):
+        return "arrays or objects nest too deeply"
+    if isinstance(cause, json.JSONDecodeError):
+        return f"{cause.msg} at character {cause.pos}"
+    return f"{type(cause).__name__} while reading it"
 
 
 def _located(item: dict) -> str:

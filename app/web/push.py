@@ -2,12 +2,14 @@
 
 Read as FastAPI reads any body (``json.loads`` into Python objects, then validated), an assessment of
 600,000 inner scores spends about twice as long before the store sees it; a packed body
-(``foldwise.wire``) spares both sides the base64 text of its predictions too. A JSON body pydantic
-refuses, or one of another type, takes FastAPI's own way after all, so that every rejection is the
-usual 422 naming the JSON path of the problem.
+(``foldwise.wire``) spares both sides the base64 text of its predictions too. Either body is validated
+once: a refusal is raised from that one validation as the usual 422 naming the JSON path of the
+problem. A body of another type takes FastAPI's own way, which refuses it (one validation too).
 """
 
 from __future__ import annotations
+
+import json
 
 from fastapi import BackgroundTasks, Request
 from fastapi.concurrency import run_in_threadpool
@@ -18,6 +20,7 @@ from pydantic import ValidationError
 
 from foldwise.payload import AssessmentPayload
 from foldwise.store import UuidConflict, checkpoint, insert_assessment
+from foldwise.web.errors import unreadable_reason
 from foldwise.wire import CONTENT_TYPE, PackedBodyError, read_packed_body
 
 OPENAPI = {"requestBody": {"content": {CONTENT_TYPE: {
@@ -34,10 +37,7 @@ class PushRoute(APIRoute):
             if kind == CONTENT_TYPE:
                 payload = await run_in_threadpool(_from_packed, await _body_in_one_buffer(request))
             elif kind == "application/json":
-                try:
-                    payload = await run_in_threadpool(AssessmentPayload.model_validate_json, await request.body())
-                except ValidationError:
-                    return await usual(request)  # the body is kept: FastAPI reads it from memory
+                payload = await run_in_threadpool(_from_json, await request.body())
             else:
                 return await usual(request)
             background = BackgroundTasks()
@@ -83,6 +83,34 @@ def stored(request: Request, payload: AssessmentPayload, background: BackgroundT
     body = {"uuid": str(payload.uuid), "created": created,
             "url": str(request.url_for("assessment_detail", uuid=str(payload.uuid)))}
     return JSONResponse(body, status_code=201 if created else 200)
+
+
+def _from_json(body: bytes) -> AssessmentPayload:
+    """The payload validated once, by pydantic from the bytes; a refusal is the 422 of any other body."""
+    try:
+        return AssessmentPayload.model_validate_json(body)
+    except ValidationError as error:
+        problems = error.errors(include_url=False, include_input=False)
+    if not body:
+        raise RequestValidationError([{"loc": ("body",), "msg": "Field required", "type": "missing"}])
+    if any(problem["type"] == "json_invalid" for problem in problems):
+        # Nothing was validated: pydantic's reader stopped before. Where does the standard library's?
+        try:
+            document = json.loads(body)
+        except json.JSONDecodeError as error:
+            raise RequestValidationError([{"loc": ("body", error.pos), "msg": "JSON decode error",
+                                           "type": "json_invalid"}]) from None
+        except (UnicodeDecodeError, RecursionError) as error:
+            raise RequestValidationError([{"loc": ("body",), "type": "json_invalid", "msg": (
+                f"the body is not JSON this server can read ({unreadable_reason(error)}); send UTF-8 JSON")}]
+            ) from None
+        # JSON past pydantic's nesting limit, which the standard library reads: validated from that.
+        try:
+            return AssessmentPayload.model_validate(document)
+        except ValidationError as error:
+            problems = error.errors(include_url=False, include_input=False)
+    raise RequestValidationError([{"loc": ("body", *problem["loc"]), "msg": problem["msg"], "type": problem["type"]}
+                                  for problem in problems])
 
 
 def _from_packed(body: bytes | memoryview) -> AssessmentPayload:

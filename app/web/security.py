@@ -19,9 +19,12 @@ Its refusals have the one shape of every refusal (``foldwise.web.errors``), loca
 
 from __future__ import annotations
 
-import json
 import re
-from urllib.parse import parse_qsl, urlencode
+from urllib.parse import urlencode
+
+from starlette.datastructures import Headers
+from starlette.requests import HTTPConnection
+from starlette.responses import JSONResponse, RedirectResponse, Response
 
 from foldwise.keys import KeyFile
 from foldwise.web.errors import KINDS, entry
@@ -32,7 +35,8 @@ _OPEN = re.compile(r"^/(healthz|static/|vendor/|favicon)")
 # POSTs that compute but store nothing: any reader may make them.
 _READ_ONLY_POSTS = re.compile(r"^/api/assessments/[^/]+/ensembles/preview$")
 _SAFE_METHODS = {"GET", "HEAD", "OPTIONS"}
-_CHALLENGE = [(b"www-authenticate", b'Bearer realm="foldwise"')]  # how to send a key (RFC 6750)
+_CHALLENGE = {"www-authenticate": 'Bearer realm="foldwise"'}  # how to send a key (RFC 6750)
+_COOKIE_SECONDS = 30 * 24 * 3600
 _HEADERS = [
     (b"content-security-policy",
      b"default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; img-src 'self' data: blob:; "
@@ -54,59 +58,59 @@ class Guard:
         if scope["type"] != "http":
             return await self.app(scope, receive, send)
         send = _with_headers(send)
-        headers = {name.decode("latin-1"): value.decode("latin-1") for name, value in scope["headers"]}
-        method, path = scope["method"], scope["path"]
+        request = HTTPConnection(scope)
+        headers, method, path = request.headers, scope["method"], scope["path"]
 
         allowed = self.methods.allowed(path)
         if allowed is not None and method not in allowed:
-            return await _reply(send, 405, f"{path} takes {allow_header(allowed)}, not {method}", loc=["method"],
-                                headers=[(b"allow", allow_header(allowed).encode())])
+            return await _reply(scope, receive, send, 405, f"{path} takes {allow_header(allowed)}, not {method}",
+                                loc=["method"], headers={"allow": allow_header(allowed)})
         if allowed is not None and method == "OPTIONS":
-            return await _options(send, allowed)
+            return await Response(status_code=204, headers={"allow": allow_header(allowed)})(scope, receive, send)
         length = headers.get("content-length", "")
         if length.isdigit() and int(length) > self.max_body_bytes:
-            return await _reply(send, 413, f"the request body has {int(length)} bytes; this server takes at most "
-                                           f"{self.max_body_bytes} (FOLDWISE_MAX_BODY_MB)", loc=["body"])
+            return await _reply(scope, receive, send, 413, f"the request body has {int(length)} bytes; this server "
+                                f"takes at most {self.max_body_bytes} (FOLDWISE_MAX_BODY_MB)", loc=["body"])
         if _OPEN.match(path):
             return await self.app(scope, receive, send)
 
-        query = parse_qsl(scope.get("query_string", b"").decode("latin-1"), keep_blank_values=True)
-        offered = dict(query).get("key")
+        offered = request.query_params.get("key")
         if offered is not None and method == "GET":
-            return await self._trade_for_cookie(scope, send, offered, query)
+            return await self._trade_for_cookie(scope, receive, send, offered)
 
-        key = self.keys.find(_bearer(headers) or _cookie(headers))
+        key = self.keys.find(_bearer(headers) or request.cookies.get(COOKIE))
+        # What the visitor may do, for the pages: a Save form only for a write key (request.state.key_kind).
+        scope.setdefault("state", {})["key_kind"] = key.kind if key else None
         writes = method not in _SAFE_METHODS and not _READ_ONLY_POSTS.match(path)
         if method not in _SAFE_METHODS and not _same_origin(headers, scope):
-            return await _reply(send, 403, "cross-origin request refused: state-changing requests must come "
-                                           "from this dashboard's own pages", loc=["header", "origin"])
+            return await _reply(scope, receive, send, 403, "cross-origin request refused: state-changing requests "
+                                "must come from this dashboard's own pages", loc=["header", "origin"])
         if writes and (key is None or key.kind != "write"):
-            return await _reply(send, 401, "this request changes the store and needs a write key: send "
-                                           "'Authorization: Bearer <key>' (see `foldwise keys show`)",
-                               loc=["header", "authorization"], headers=_CHALLENGE)
+            return await _reply(scope, receive, send, 401, "this request changes the store and needs a write key: "
+                                "send 'Authorization: Bearer <key>' (see `foldwise keys show`)",
+                                loc=["header", "authorization"], headers=_CHALLENGE)
         if self.reads_need_key and key is None:
-            return await _reply(send, 401, "this dashboard needs a key: open the share link you were given, "
-                                           "or send 'Authorization: Bearer <key>'", loc=["header", "authorization"],
-                               headers=_CHALLENGE)
+            return await _reply(scope, receive, send, 401, "this dashboard needs a key: open the share link you "
+                                "were given, or send 'Authorization: Bearer <key>'", loc=["header", "authorization"],
+                                headers=_CHALLENGE)
         if method not in _SAFE_METHODS and not length.isdigit():
             body = await _read_at_most(receive, self.max_body_bytes)
             if body is None:
-                return await _reply(send, 413, f"the request body is over this server's limit of "
-                                               f"{self.max_body_bytes} bytes (FOLDWISE_MAX_BODY_MB)", loc=["body"])
+                return await _reply(scope, receive, send, 413, f"the request body is over this server's limit of "
+                                    f"{self.max_body_bytes} bytes (FOLDWISE_MAX_BODY_MB)", loc=["body"])
             receive = _replay(body, receive)
         return await self.app(scope, receive, send)
 
-    async def _trade_for_cookie(self, scope, send, offered: str, query) -> None:
+    async def _trade_for_cookie(self, scope, receive, send, offered: str) -> None:
         if self.keys.find(offered) is None:
-            return await _reply(send, 401, "this link's key is not valid (it may have been revoked)",
+            return await _reply(scope, receive, send, 401, "this link's key is not valid (it may have been revoked)",
                                 loc=["query", "key"], headers=_CHALLENGE)
-        rest = urlencode([(name, value) for name, value in query if name != "key"])
-        location = scope["path"] + (f"?{rest}" if rest else "")
-        cookie = f"{COOKIE}={offered}; HttpOnly; SameSite=Strict; Path=/; Max-Age=2592000"
-        await send({"type": "http.response.start", "status": 303,
-                    "headers": [(b"location", location.encode("latin-1")), (b"set-cookie", cookie.encode("latin-1")),
-                                (b"cache-control", b"no-store")]})
-        await send({"type": "http.response.body", "body": b""})
+        rest = urlencode([(name, value) for name, value in HTTPConnection(scope).query_params.multi_items()
+                          if name != "key"])
+        response = RedirectResponse(scope["path"] + (f"?{rest}" if rest else ""), status_code=303,
+                                    headers={"cache-control": "no-store"})
+        response.set_cookie(COOKIE, offered, max_age=_COOKIE_SECONDS, path="/", httponly=True, samesite="strict")
+        await response(scope, receive, send)
 
 
 async def _read_at_most(receive, limit: int) -> bytes | None:
@@ -148,34 +152,18 @@ def _with_headers(send):
     return sending
 
 
-async def _reply(send, status: int, msg: str, *, loc: list[str], headers=()) -> None:
-    body = json.dumps({"detail": [entry(msg, loc=loc, type=KINDS[status])]}).encode()
-    await send({"type": "http.response.start", "status": status,
-                "headers": [(b"content-type", b"application/json"), (b"content-length", str(len(body)).encode()),
-                            *headers]})
-    await send({"type": "http.response.body", "body": body})
+async def _reply(scope, receive, send, status: int, msg: str, *, loc: list[str], headers=None) -> None:
+    response = JSONResponse({"detail": [entry(msg, loc=loc, type=KINDS[status])]}, status_code=status,
+                            headers=headers)
+    await response(scope, receive, send)
 
 
-async def _options(send, allowed: frozenset[str]) -> None:
-    await send({"type": "http.response.start", "status": 204,
-                "headers": [(b"allow", allow_header(allowed).encode())]})
-    await send({"type": "http.response.body", "body": b""})
-
-
-def _bearer(headers: dict) -> str | None:
+def _bearer(headers: Headers) -> str | None:
     value = headers.get("authorization", "")
     return value[7:].strip() if value.lower().startswith("bearer ") else None
 
 
-def _cookie(headers: dict) -> str | None:
-    for part in headers.get("cookie", "").split(";"):
-        name, _, value = part.strip().partition("=")
-        if name == COOKIE:
-            return value
-    return None
-
-
-def _same_origin(headers: dict, scope) -> bool:
+def _same_origin(headers: Headers, scope) -> bool:
     origin = headers.get("origin")
     if origin is None:  # not sent by a browser page (scripts, the push client): the key decides
         return True

@@ -394,7 +394,7 @@ BODIES = {
     "not UTF-8": (b'{"name": "\xff"}', "body: the body is not JSON this server can read (byte 10 is not UTF-8)"),
     "nested too deeply": (b"[" * 100_000 + b"]" * 100_000, "body: the body is not JSON this server can read "
                                                            "(arrays or objects nest too deeply)"),
-    "NaN token as the whole body": (b"NaN", "body: Input should be a valid dictionary"),
+    "NaN token as the whole body": (b"NaN", "body: Input should be an object"),
 }
 
 

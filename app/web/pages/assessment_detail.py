@@ -1,4 +1,5 @@
-"""One assessment: its design, nested estimate, each family's outer scores and the fold winners."""
+"""One assessment: its headline (the nested estimate with its interval beside the non-nested best inner
+score), design, each family's outer scores, the fold winners and what to ship."""
 
 from __future__ import annotations
 
@@ -9,22 +10,19 @@ from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.definitions import nested_estimate
-from foldwise.store import (
-    AssessmentRecord,
-    EnsembleRecord,
-    ensembles_for,
-    failures_for,
-    family_winners_for,
-    outer_scores_for,
-    winners_for,
-)
+from foldwise.store import AssessmentReader, AssessmentRecord, EnsembleRecord
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.forms import form_page
+from foldwise.web.headline import Headline, headline
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
+from foldwise.web.shipping import Shipping, shipping
 
 router = APIRouter()
+
+_FAILURES_SHOWN = 20  # the first failures listed on the page; the count says how many there are
 
 
 @dataclass(frozen=True)
@@ -49,15 +47,17 @@ class AssessmentContext:
     failures: list[dict]
     n_failures: int
     ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
+    headline: Headline  # nested estimate and interval beside the non-nested best inner score, on `metric`
+    shipping: Shipping  # the final choice beside the fold winners (selection metric); the ensemble follows
 
 
-def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentContext:
-    record = record_or_404(engine, uuid)
+def assessment_context(reader: AssessmentReader, *, metric: str | None) -> AssessmentContext:
+    record = reader.record
     metric, metrics = metric_or_422(record, metric), record.design.metrics
     # The fold winners' rows only: the inner means come from the summaries stored with the assessment.
-    overall = winners_for(engine, uuid, metric=metric)
-    per_family = family_winners_for(engine, uuid, metric=metric)
-    outer = outer_scores_for(engine, uuid, metric=metric, winners="family")
+    overall = reader.winners(kind="overall", metric=metric)
+    per_family = reader.winners(kind="family", metric=metric)
+    outer = reader.outer(metric=metric, winners="family")
     by_fold: dict[tuple[int, int], dict[str, dict]] = {}
     for row in records(per_family):
         by_fold.setdefault((row["repeat"], row["outer_fold"]), {})[row["family"]] = row
@@ -72,19 +72,23 @@ def assessment_context(engine, uuid: str, *, metric: str | None) -> AssessmentCo
     estimate = {"mean": plain(nested.mean), "sd": plain(nested.sd), "min": plain(scores.min()),
                 "max": plain(scores.max()), "n": nested.n_used, "n_folds": nested.n_folds,
                 "n_failed": nested.n_failed, "described": nested.described}
-    failures = failures_for(engine, uuid)
+    failures = reader.failures(limit=_FAILURES_SHOWN)
     design, families = record.design, [family.name for family in record.families]
+    summary = frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)
+    final = reader.final_selection()
+    selecting = overall if metric == design.selection_metric else reader.winners(kind="overall")
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
-        metric=metric, metrics=metrics, estimate=estimate,
-        summary=records(frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)),
-        families=families,
-        colours=family_colours(families), folds=folds, failures=records(failures.head(20)),
-        n_failures=len(failures), ensembles=ensembles_for(engine, uuid))
+        metric=metric, metrics=metrics, estimate=estimate, summary=records(summary), families=families,
+        colours=family_colours(families), folds=folds, failures=records(failures),
+        n_failures=record.n_failures, ensembles=reader.ensembles(),
+        headline=headline(record, metric=metric, winners=overall, sizes=reader.fold_sizes(),
+                          summary=summary, family_outer=outer, final=final),
+        shipping=shipping(record, selecting, final))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def assessment_detail(request: Request, uuid: str, metric: str | None = None):
-    context = assessment_context(request.app.state.engine, uuid, metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "assessment_detail.html", {"page": context})
+def assessment_detail(request: Request, reader: ReaderDep, metric: str | None = None):
+    return form_page(request, "assessment_detail.html", lambda metric: assessment_context(reader, metric=metric),
+                     {"metric": metric})

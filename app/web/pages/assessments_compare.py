@@ -7,20 +7,21 @@ from dataclasses import dataclass
 from typing import Annotated
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
-from foldwise.store import AssessmentRecord, list_assessments, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
 from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
-from foldwise.web.errors import error_responses
-from foldwise.web.fold_scores import family_fold_scores, fold_pairs, fold_sizes, overall_fold_scores
-from foldwise.web.lookup import record_or_404
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
+from foldwise.web.forms import keep_place, rope_from
+from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
-from foldwise.web.query import Rope
+from foldwise.web.query import ROPE_TEXT, Rope
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -42,8 +43,8 @@ class Side:
 
 @dataclass(frozen=True)
 class AssessmentsCompareContext:
-    assessments: list[dict]  # every stored assessment, for the two selects
-    x_choice: str  # what the selects show: the requested uuids, else the two newest assessments
+    assessments: list[dict]  # every stored assessment with its outer-folds fingerprint, for the two selects
+    x_choice: str  # what the selects show: the requested uuids, else a pair whose outer folds match
     y_choice: str
     x: AssessmentRecord | None
     y: AssessmentRecord | None
@@ -58,22 +59,22 @@ class AssessmentsCompareContext:
     intervals_figure: str | None
 
 
-def assessments_compare_context(engine, *, x: str | None, y: str | None, metric: str | None,
+def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | None, metric: str | None,
                                 rope: float) -> AssessmentsCompareContext:
     if not (math.isfinite(rope) and rope >= 0):
-        raise HTTPException(422, f"rope must be a finite number >= 0 (in score units, e.g. 0.01); "
-                                 f"got {rope!r}")
-    listing = records(list_assessments(engine))
+        raise refusal(422, f"the ROPE is a half-width in score units, a number of 0 or more (e.g. 0.01); "
+                           f"got {rope!r}", loc=["query", "rope"])
+    fingerprints = store.fingerprints()
+    listing = [row | {"fingerprint": fingerprints.get(row["uuid"], "")} for row in records(store.assessments())]
     if not (x and y):
-        newest = [row["uuid"] for row in listing]
-        x = x or next(iter(newest), "")
-        y = y or next((uuid for uuid in newest if uuid != x), "")
+        x, y = _proposed(listing, x or None, y or None)
         return AssessmentsCompareContext(listing, x, y, None, None, None, [], rope, False, "", [], [],
                                          None, None)
-    first, second = record_or_404(engine, x), record_or_404(engine, y)
+    x_reader, y_reader = (assessment_or_404(store, uuid, loc=("query", name)) for name, uuid in (("x", x), ("y", y)))
+    first, second = x_reader.record, y_reader.record
     metrics = [m for m in first.design.metrics if m in second.design.metrics]
     metric = _common_metric(first, second, metric, metrics)
-    left, right = _side(engine, first, metric), _side(engine, second, metric)
+    left, right = _side(x_reader, metric), _side(y_reader, metric)
     reason = _unpaired_reason(first, second)
     comparisons = [] if reason else _comparisons(left, right, rope=rope)
     summaries = _summaries(left, right)
@@ -82,49 +83,76 @@ def assessments_compare_context(engine, *, x: str | None, y: str | None, metric:
         assessments=listing, x_choice=first.uuid, y_choice=second.uuid, x=first, y=second, metric=metric,
         metrics=metrics, rope=rope, paired=not reason, reason=reason, comparisons=comparisons,
         summaries=summaries,
-        differences_figure=paired_strips_figure(comparisons, rope=rope) if comparisons else None,
-        intervals_figure=intervals_figure(summaries, colours=family_colours(families)))
+        differences_figure=paired_strips_figure(comparisons, rope=rope, metric=metric) if comparisons else None,
+        intervals_figure=intervals_figure(summaries, colours=family_colours(families), metric=metric))
 
 @router.get("/compare", name="assessments_compare", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def assessments_compare(request: Request, x: str | None = None, y: str | None = None,
-                        metric: str | None = None, rope: Rope = 0.01):
-    context = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+def assessments_compare(request: Request, store: StoreDep, x: str | None = None, y: str | None = None,
+                        metric: str | None = None, rope: str | None = Query(None, description=ROPE_TEXT)):
+    # The form keeps its place: an assessment, metric or ROPE the page cannot use is named beside its field.
+    def build(x, y, metric, rope):
+        return assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope_from(rope))
+
+    context, form = keep_place(build, {"x": x, "y": y, "metric": metric, "rope": rope}, {})
     return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
-                                                        {"page": context})
+                                                        {"page": context, "form": form}, status_code=form.status)
 
 
 @router.get("/api/compare", name="assessments_compare_json", response_model=AssessmentsComparison,
             responses=error_responses(404, 422))
-def assessments_compare_json(request: Request, x: Annotated[str, Query(min_length=1)],
+def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length=1)],
                              y: Annotated[str, Query(min_length=1)],
                              metric: str | None = None, rope: Rope = 0.01):
     """Two assessments: paired tests family by family when their outer folds match, else summaries."""
-    page = assessments_compare_context(request.app.state.engine, x=x, y=y, metric=metric, rope=rope)
+    page = assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope)
     return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,
             "paired": page.paired, "reason": page.reason or None,
             "fingerprints": {"x": page.x.fingerprint, "y": page.y.fingerprint},
             "comparisons": page.comparisons, "summaries": page.summaries}
 
 
+def _proposed(listing: list[dict], x: str | None, y: str | None) -> tuple[str, str]:
+    """The pair the selects offer when one or both are unset: first one whose outer folds match (newest
+    first), else the newest other assessment."""
+    uuids = [row["uuid"] for row in listing]
+    prints = {row["uuid"]: row["fingerprint"] for row in listing}
+
+    def partner(of: str, other: str | None) -> str:
+        others = [uuid for uuid in uuids if uuid != of]
+        if other:
+            return other
+        return next((uuid for uuid in others if prints[uuid] == prints.get(of)), next(iter(others), ""))
+
+    if x is None and y is None:
+        x = next((uuid for uuid in uuids if any(prints[o] == prints[uuid] for o in uuids if o != uuid)),
+                 next(iter(uuids), ""))
+    if x is None:
+        return partner(y, None), y
+    return x, partner(x, y)
+
+
 def _common_metric(x: AssessmentRecord, y: AssessmentRecord, metric: str | None, common: list[str]) -> str:
     if not common:
-        raise HTTPException(422, f"the two assessments share no metric: x recorded {x.design.metrics}, "
-                                 f"y recorded {y.design.metrics}")
+        raise refusal(422, f"x and y share no metric (x recorded {', '.join(x.design.metrics)}; y recorded "
+                           f"{', '.join(y.design.metrics)}): choose a y scored on one of x's metrics",
+                      loc=["query", "y"])
     if metric is None:
         return common[0]
     if metric not in common:
-        raise HTTPException(422, f"metric {metric!r} must be recorded in both assessments; x recorded "
-                                 f"{x.design.metrics}, y recorded {y.design.metrics}; choose one of {common}")
+        raise refusal(422, f"metric {metric!r} must be recorded in both assessments (x recorded "
+                           f"{', '.join(x.design.metrics)}; y recorded {', '.join(y.design.metrics)}); choose "
+                           f"one of {', '.join(common)}", loc=["query", "metric"])
     return metric
 
 
-def _side(engine, record: AssessmentRecord, metric: str) -> Side:
-    outer = outer_scores_for(engine, record.uuid)
+def _side(reader: AssessmentReader, metric: str) -> Side:
+    record = reader.record
+    outer, sizes = reader.outer(metric=metric, winners="either"), reader.fold_sizes()
     table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
     ranked = table.dropna(subset=["mean"])["family"]
-    return Side(record=record, families=family_fold_scores(outer, metric, [f.name for f in record.families]),
-                overall=overall_fold_scores(outer, metric), sizes=fold_sizes(outer),
+    return Side(record=record, families=family_fold_scores(outer, metric, record.family_names, folds=sizes.index),
+                overall=overall_fold_scores(outer, metric, folds=sizes.index), sizes=sizes,
                 best=str(ranked.iloc[0]) if len(ranked) else None)
 
 

@@ -9,13 +9,13 @@ from fastapi import APIRouter, HTTPException, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise.stats.planner import project_wall_time
-from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.cost import cost_figure
 from foldwise.web.context_json import context_json, context_model
-from foldwise.web.errors import error_responses
-from foldwise.web.lookup import record_or_404
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.forms import form_page
+from foldwise.web.lookup import ReaderDep
 from foldwise.web.palette import family_colours
-from foldwise.web.serialise import plain
 
 router = APIRouter()
 
@@ -38,24 +38,24 @@ class CostContext:
     cost_figure: str
 
 
-def compute_cost_context(engine, uuid: str, *, outer: int | None = None, inner: int | None = None,
+def compute_cost_context(reader: AssessmentReader, *, outer: int | None = None, inner: int | None = None,
                          repeats: int | None = None, configs: int | None = None,
                          cores: int | None = None) -> CostContext:
-    record = record_or_404(engine, uuid)
-    design, selection = record.design, record.design.selection_metric
-    # Each fit is recorded once per metric with the same times: the selection metric's rows are the fits.
-    inner_fits = _fits(inner_scores_for(engine, uuid), selection)
-    outer_fits = _fits(outer_scores_for(engine, uuid), selection)
-    failures = failures_for(engine, uuid)
+    record = reader.record
+    design = record.design
+    costs = reader.fit_costs()  # summed by the database: no score is read
+    failed = reader.failure_counts()
     families = [family.name for family in record.families]
-    fits = {"inner": len(inner_fits), "outer": len(outer_fits), "total": len(inner_fits) + len(outer_fits),
-            "inner_failed": int((failures["level"] == "inner").sum()),
-            "outer_failed": int((failures["level"] == "outer").sum())}
-    by_family = [_family_cost(family, inner_fits, outer_fits) for family in families]
-    inner_seconds, outer_seconds = inner_fits["seconds"].sum(), outer_fits["seconds"].sum()
-    by_level = {"inner_seconds": plain(inner_seconds), "outer_seconds": plain(outer_seconds),
-                "total_seconds": plain(inner_seconds + outer_seconds)}
-    mean_fit = plain(pd.concat([inner_fits["seconds"], outer_fits["seconds"]]).mean())
+    levels = {level: costs[costs["level"] == level] for level in ("inner", "outer")}
+    n_inner, n_outer = (int(levels[level]["n_fits"].sum()) for level in ("inner", "outer"))
+    fits = {"inner": n_inner, "outer": n_outer, "total": n_inner + n_outer,
+            "inner_failed": failed.get("inner", 0), "outer_failed": failed.get("outer", 0)}
+    by_family = [_family_cost(family, levels["inner"], levels["outer"]) for family in families]
+    inner_seconds, outer_seconds = (float(levels[level]["seconds"].sum()) for level in ("inner", "outer"))
+    by_level = {"inner_seconds": inner_seconds, "outer_seconds": outer_seconds,
+                "total_seconds": inner_seconds + outer_seconds}
+    n_timed = int(costs["n_timed"].sum())
+    mean_fit = (inner_seconds + outer_seconds) / n_timed if n_timed else None
     cores = cores or DEFAULT_CORES
     own = _design(design.n_outer_folds, design.n_inner_folds, design.n_repeats, len(record.configurations),
                   cores, refit_all=design.refit_all, n_families=len(families))
@@ -76,16 +76,12 @@ def _design(outer: int, inner: int, repeats: int, configs: int, cores: int, *, r
             "refits_per_fold": refits}
 
 
-def _fits(scores: pd.DataFrame, metric: str) -> pd.DataFrame:
-    fits = scores[scores["metric"] == metric]
-    return fits.assign(seconds=fits["fit_time"] + fits["score_time"])[["family", "seconds"]]
-
-
-def _family_cost(family: str, inner_fits: pd.DataFrame, outer_fits: pd.DataFrame) -> dict:
-    inner = inner_fits.loc[inner_fits["family"] == family, "seconds"]
-    outer = outer_fits.loc[outer_fits["family"] == family, "seconds"]
-    return {"family": family, "n_fits": len(inner) + len(outer), "inner_seconds": plain(inner.sum()),
-            "outer_seconds": plain(outer.sum()), "total_seconds": plain(inner.sum() + outer.sum())}
+def _family_cost(family: str, inner: pd.DataFrame, outer: pd.DataFrame) -> dict:
+    inner, outer = inner[inner["family"] == family], outer[outer["family"] == family]
+    inner_seconds, outer_seconds = float(inner["seconds"].sum()), float(outer["seconds"].sum())
+    return {"family": family, "n_fits": int(inner["n_fits"].sum() + outer["n_fits"].sum()),
+            "inner_seconds": inner_seconds, "outer_seconds": outer_seconds,
+            "total_seconds": inner_seconds + outer_seconds}
 
 
 def _project(mean_fit: float | None, plan: dict) -> dict | None:
@@ -112,22 +108,24 @@ def _counts(**given: str | None) -> dict[str, int | None]:
         except ValueError:
             counts[name] = 0
         if not 1 <= counts[name] <= _MOST:
-            raise HTTPException(422, f"{name} must be a whole number from 1 to {_MOST}; got {text!r}")
+            raise refusal(422, f"{name} must be a whole number from 1 to {_MOST}; got {text!r}", loc=["query", name])
     return counts
 
 
 @router.get("/assessments/{uuid}/cost", name="compute_cost", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def compute_cost(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
+def compute_cost(request: Request, reader: ReaderDep, outer: str | None = None, inner: str | None = None,
                  repeats: str | None = None, configs: str | None = None, cores: str | None = None):
-    counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
-    context = compute_cost_context(request.app.state.engine, uuid, **counts)
-    return request.app.state.templates.TemplateResponse(request, "compute_cost.html", {"page": context})
+    def build(**given):
+        return compute_cost_context(reader, **_counts(**given))
+
+    return form_page(request, "compute_cost.html", build,
+                     {"outer": outer, "inner": inner, "repeats": repeats, "configs": configs, "cores": cores})
 
 
-@router.get("/api/assessments/{uuid}/cost", name="api_compute_cost", response_model=context_model(CostContext),
+@router.get("/api/assessments/{uuid}/cost", name="compute_cost_json", response_model=context_model(CostContext),
             responses=error_responses(404, 422))
-def compute_cost_json(request: Request, uuid: str, outer: str | None = None, inner: str | None = None,
+def compute_cost_json(reader: ReaderDep, outer: str | None = None, inner: str | None = None,
                       repeats: str | None = None, configs: str | None = None, cores: str | None = None):
     counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
-    return context_json(compute_cost_context(request.app.state.engine, uuid, **counts))
+    return context_json(compute_cost_context(reader, **counts))

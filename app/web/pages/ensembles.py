@@ -10,21 +10,11 @@ from fastapi.responses import HTMLResponse, JSONResponse, Response
 from pydantic import BaseModel, ConfigDict, Field
 
 from foldwise.payload import Name
-from foldwise.store import (
-    AssessmentRecord,
-    EnsembleRecord,
-    delete_ensemble,
-    ensemble_members_for,
-    ensembles_for,
-    fitted_model_counts,
-    fitted_models_for,
-    get_ensemble,
-    insert_ensemble,
-)
+from foldwise.store import AssessmentRecord, EnsembleRecord, StoreReader, delete_ensemble
 from foldwise.web.answers import Ensemble, EnsembleEstimate, EnsembleWithEstimate
 from foldwise.web.ensemble_estimate import ensemble_estimate
-from foldwise.web.errors import error_responses
-from foldwise.web.lookup import record_or_404
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.lookup import EnsembleDep, EnsembleRead, ReaderDep, assessment_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, to_csv
 
@@ -57,11 +47,10 @@ class EnsembleDetailContext:
     estimate_json: str
 
 
-def ensemble_detail_context(engine, eid: str) -> EnsembleDetailContext:
-    ensemble = _ensemble_or_404(engine, eid)
-    record = record_or_404(engine, ensemble.assessment_uuid)
-    estimate = ensemble_estimate(engine, record, ensemble.members, metric=ensemble.metric)
-    counts = fitted_model_counts(engine, record.uuid)
+def ensemble_detail_context(read: EnsembleRead) -> EnsembleDetailContext:
+    ensemble, record = read.ensemble, read.assessment.record
+    estimate = ensemble_estimate(read.assessment, ensemble.members, metric=ensemble.metric)
+    counts = read.assessment.fitted_model_counts()
     return EnsembleDetailContext(record=record, ensemble=ensemble, estimate=estimate,
                                  models_kept=all(counts.get(member) for member in ensemble.members),
                                  colours=family_colours([family.name for family in record.families]),
@@ -70,32 +59,32 @@ def ensemble_detail_context(engine, eid: str) -> EnsembleDetailContext:
 
 @router.get("/ensembles/{eid}", name="ensemble_detail", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def ensemble_detail(request: Request, eid: str):
-    context = ensemble_detail_context(request.app.state.engine, eid)
+def ensemble_detail(request: Request, read: EnsembleDep):
+    context = ensemble_detail_context(read)
     return request.app.state.templates.TemplateResponse(request, "ensemble_detail.html", {"page": context})
 
 
 @router.post("/api/assessments/{uuid}/ensembles/preview", name="ensemble_preview", response_model=EnsembleEstimate,
             responses=error_responses(404, 422))
-def preview(request: Request, uuid: str, body: PreviewRequest):
+def preview(reader: ReaderDep, body: PreviewRequest):
     """Score the ensemble of ``members`` on every outer fold of every repeat from the stored predictions."""
-    engine = request.app.state.engine
-    return ensemble_estimate(engine, record_or_404(engine, uuid), body.members, metric=body.metric,
-                             rope=body.rope)
+    return ensemble_estimate(reader, body.members, metric=body.metric, rope=body.rope)
 
 
 @router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble", response_model=Ensemble,
             responses=error_responses(404, 422))
 def save(request: Request, uuid: str, body: SaveRequest):
     """Save a named ensemble with its members, a note and its estimate (in one transaction)."""
-    engine = request.app.state.engine
-    estimate = ensemble_estimate(engine, record_or_404(engine, uuid), body.members, metric=body.metric)
-    try:
-        ensemble = insert_ensemble(engine, uuid, name=body.name, note=body.note, members=body.members,
-                                   voting=estimate["voting"], metric=estimate["metric"],
-                                   estimate_mean=estimate["mean"], estimate_sd=estimate["sd"])
-    except ValueError as error:
-        raise HTTPException(422, str(error)) from None
+    # One connection writing from the start: the estimate is made from what the ensemble is saved beside.
+    with StoreReader.open(request.app.state.engine, write=True) as store:
+        reader = assessment_or_404(store, uuid)
+        estimate = ensemble_estimate(reader, body.members, metric=body.metric)
+        try:
+            ensemble = reader.save_ensemble(name=body.name, note=body.note, members=body.members,
+                                            voting=estimate["voting"], metric=estimate["metric"],
+                                            estimate_mean=estimate["mean"], estimate_sd=estimate["sd"])
+        except ValueError as error:
+            raise HTTPException(422, str(error)) from None
     return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
 
 
@@ -103,21 +92,19 @@ def save(request: Request, uuid: str, body: SaveRequest):
             responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
                              "description": "the saved ensembles, as JSON or (format=csv) one CSV row per member"},
                        **error_responses(404, 422)})
-def listed(request: Request, uuid: str, format: str = Query("json", pattern="^(json|csv)$")):
+def listed(request: Request, reader: ReaderDep, format: str = Query("json", pattern="^(json|csv)$")):
     """The assessment's saved ensembles; as CSV, one row per ensemble and member."""
-    engine = request.app.state.engine
-    record_or_404(engine, uuid)
     if format == "csv":
-        return Response(to_csv(ensemble_members_for(engine, uuid)), media_type="text/csv", headers={
-            "content-disposition": f'attachment; filename="{uuid}-ensembles.csv"'})
-    return [_ensemble_json(request, ensemble) for ensemble in ensembles_for(engine, uuid)]
+        return Response(to_csv(reader.ensemble_members()), media_type="text/csv", headers={
+            "content-disposition": f'attachment; filename="{reader.uuid}-ensembles.csv"'})
+    return [_ensemble_json(request, ensemble) for ensemble in reader.ensembles()]
 
 
-@router.get("/api/ensembles/{eid}", name="ensemble_json", response_model=EnsembleWithEstimate,
+@router.get("/api/ensembles/{eid}", name="ensemble_detail_json", response_model=EnsembleWithEstimate,
             responses=error_responses(404))
-def one(request: Request, eid: str):
+def ensemble_detail_json(request: Request, read: EnsembleDep):
     """A saved ensemble with its estimate recomputed from the stored predictions."""
-    page = ensemble_detail_context(request.app.state.engine, eid)
+    page = ensemble_detail_context(read)
     return _ensemble_json(request, page.ensemble) | {"estimate": page.estimate,
                                                      "models_kept": page.models_kept}
 
@@ -126,7 +113,7 @@ def one(request: Request, eid: str):
                responses=error_responses(404))
 def delete(request: Request, eid: str):
     if not delete_ensemble(request.app.state.engine, eid):
-        raise HTTPException(404, f"no ensemble {eid!r} in this store")
+        raise refusal(404, f"no ensemble {eid!r} in this store", loc=["path", "eid"])
     return Response(status_code=204)
 
 
@@ -134,15 +121,13 @@ def delete(request: Request, eid: str):
             responses={200: {"content": {"application/json": {"schema": {"type": "object"}}},
                              "description": "a JSON file: the members' families, estimator classes and parameters"},
                        **error_responses(404)})
-def spec(request: Request, eid: str):
+def spec(read: EnsembleDep):
     """The members as plain JSON (family, estimator class path, parameters): no foldwise needed to read it."""
     from foldwise.ensemble import ensemble_spec  # scikit-learn loads only when an ensemble is exported
 
-    engine = request.app.state.engine
-    ensemble = _ensemble_or_404(engine, eid)
-    body = ensemble_spec(record_or_404(engine, ensemble.assessment_uuid), ensemble)
+    body = ensemble_spec(read.assessment.record, read.ensemble)
     return Response(json.dumps(body, indent=2), media_type="application/json", headers={
-        "content-disposition": f'attachment; filename="ensemble-{eid}.json"'})
+        "content-disposition": f'attachment; filename="ensemble-{read.ensemble.id}.json"'})
 
 
 @router.get("/api/ensembles/{eid}/model", name="ensemble_model", response_class=Response,
@@ -150,32 +135,22 @@ def spec(request: Request, eid: str):
                                                                                  "format": "binary"}}},
                              "description": "a skops file of the kept fold winners, averaged"},
                        **error_responses(404, 409, 422)})
-def model(request: Request, eid: str):
+def model(read: EnsembleDep):
     """A skops file of the kept fold winners of the members, averaged, ready to predict."""
     import skops.io
 
     from foldwise.ensemble import UntrustedTypes, prefit_ensemble
 
-    engine = request.app.state.engine
-    ensemble = _ensemble_or_404(engine, eid)
-    record = record_or_404(engine, ensemble.assessment_uuid)
+    ensemble = read.ensemble
     try:
-        models = fitted_models_for(engine, record.uuid, configs=ensemble.members)
-        fitted = prefit_ensemble(record, ensemble, models)
+        models = read.assessment.fitted_models(ensemble.members)
+        fitted = prefit_ensemble(read.assessment.record, ensemble, models)
     except LookupError as error:
         raise HTTPException(409, str(error)) from None
     except (UntrustedTypes, ValueError) as error:
         raise HTTPException(422, str(error)) from None
     return Response(skops.io.dumps(fitted), media_type="application/octet-stream", headers={
-        "content-disposition": f'attachment; filename="ensemble-{eid}.skops"'})
-
-
-def _ensemble_or_404(engine, eid: str) -> EnsembleRecord:
-    ensemble = get_ensemble(engine, eid)
-    if ensemble is None:
-        raise HTTPException(404, f"no ensemble {eid!r} in this store: ensemble ids are uuids, listed on the "
-                                 f"assessment page and at /api/assessments/{{uuid}}/ensembles")
-    return ensemble
+        "content-disposition": f'attachment; filename="ensemble-{ensemble.id}.skops"'})
 
 
 def _ensemble_json(request: Request, ensemble: EnsembleRecord) -> dict:

@@ -7,9 +7,11 @@ from dataclasses import dataclass
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from foldwise.store import ensemble_counts, list_assessments
+from foldwise.store import StoreReader
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
+from foldwise.web.lookup import StoreDep
+from foldwise.web.pages.live_runs import running_summaries
 from foldwise.web.serialise import records
 
 router = APIRouter()
@@ -23,18 +25,19 @@ class IndexContext:
     total: int
 
 
-def index_context(engine, *, dataset: str | None, name: str | None) -> IndexContext:
-    rows = records(list_assessments(engine, dataset=dataset or None, name=name or None))
-    counts = ensemble_counts(engine)
+def index_context(store: StoreReader, *, dataset: str | None, name: str | None) -> IndexContext:
+    rows = records(store.assessments(dataset=dataset or None, name=name or None))
+    counts = store.ensemble_counts()
     for row in rows:
         row["design"] = design_text(row["n_outer_folds"], row["n_inner_folds"], row["n_repeats"])
         row["n_ensembles"] = counts.get(row["uuid"], 0)
-    total = len(rows) if not (dataset or name) else len(list_assessments(engine))
+    total = len(rows) if not (dataset or name) else store.count_assessments()
     return IndexContext(rows, dataset or "", name or "", total)
 
 
 @router.get("/", name="index", response_class=HTMLResponse,
             responses=error_responses(422, html=True))
-def index(request: Request, dataset: str | None = None, name: str | None = None):
-    context = index_context(request.app.state.engine, dataset=dataset, name=name)
-    return request.app.state.templates.TemplateResponse(request, "index.html", {"page": context})
+def index(request: Request, store: StoreDep, dataset: str | None = None, name: str | None = None):
+    context = index_context(store, dataset=dataset, name=name)
+    return request.app.state.templates.TemplateResponse(request, "index.html", {
+        "page": context, "running": running_summaries(request, store)})

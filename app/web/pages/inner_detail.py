@@ -6,14 +6,15 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from foldwise.store import AssessmentRecord, failures_for, inner_scores_for, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.inner import inner_heatmap_figure
 from foldwise.web.context_json import context_json, context_model
-from foldwise.web.errors import error_responses
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.forms import form_page
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import FoldNumber
 from foldwise.web.serialise import plain, records
@@ -56,28 +57,25 @@ class InnerDetailContext:
     fit_times_figure: str
 
 
-def inner_detail_context(engine, uuid: str, *, repeat: int = 0, outer_fold: int = 0,
+def inner_detail_context(reader: AssessmentReader, *, repeat: int = 0, outer_fold: int = 0,
                          metric: str | None = None) -> InnerDetailContext:
-    record = record_or_404(engine, uuid)
+    record = reader.record
     metric = metric_or_422(record, metric)
     design = record.design
     for name, value, size in (("repeat", repeat, design.n_repeats),
                               ("outer_fold", outer_fold, design.n_outer_folds)):
         if not 0 <= value < size:
-            raise HTTPException(422, f"{name} {value} is not in this assessment: choose 0..{size - 1}")
-    inner = inner_scores_for(engine, uuid, repeat=repeat, outer_fold=outer_fold)
-    inner = inner[inner["metric"] == metric]
-    outer = outer_scores_for(engine, uuid)
-    outer = outer[(outer["repeat"] == repeat) & (outer["outer_fold"] == outer_fold)
-                  & (outer["metric"] == metric)]
+            raise refusal(422, f"{name} {value} is not in this assessment: choose 0..{size - 1}",
+                          loc=["query", name])
+    inner = reader.inner(metric=metric, repeat=repeat, outer_fold=outer_fold)
+    outer = reader.outer(metric=metric, repeat=repeat, outer_fold=outer_fold)
     families = [family.name for family in record.families]
     order = {family: position for position, family in enumerate(families)}
     configurations = sorted(record.configurations, key=lambda c: order[c.family])  # stable: grid order kept
     inner_folds = list(range(design.n_inner_folds))
     configs = [_row(c, inner[inner["config"] == c.id], outer[outer["config"] == c.id], inner_folds)
                for c in configurations]
-    failures = failures_for(engine, uuid)
-    failures = failures[(failures["repeat"] == repeat) & (failures["outer_fold"] == outer_fold)]
+    failures = reader.failures(repeat=repeat, outer_fold=outer_fold)
     folds = [{"repeat": r, "outer_fold": o}
              for r in range(design.n_repeats) for o in range(design.n_outer_folds)]
     here = folds.index({"repeat": repeat, "outer_fold": outer_fold})
@@ -90,8 +88,8 @@ def inner_detail_context(engine, uuid: str, *, repeat: int = 0, outer_fold: int 
         failures=records(failures.drop(columns=["repeat", "outer_fold"])),
         previous_fold=folds[here - 1] if here > 0 else None,
         next_fold=folds[here + 1] if here + 1 < len(folds) else None,
-        scores_figure=inner_heatmap_figure(configs, colours, value="scores", title=f"inner score ({metric})"),
-        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", title="fit time (s)"))
+        scores_figure=inner_heatmap_figure(configs, colours, value="scores", metric=metric),
+        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", metric=metric))
 
 
 def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int]) -> ConfigRow:
@@ -110,16 +108,17 @@ def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int
 
 @router.get("/assessments/{uuid}/inner", name="inner_detail", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def inner_detail(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
+def inner_detail(request: Request, reader: ReaderDep, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                  metric: str | None = None):
-    context = inner_detail_context(request.app.state.engine, uuid, repeat=repeat, outer_fold=outer_fold,
-                                   metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "inner_detail.html", {"page": context})
+    def build(repeat, outer_fold, metric):
+        return inner_detail_context(reader, repeat=repeat, outer_fold=outer_fold, metric=metric)
+
+    return form_page(request, "inner_detail.html", build,
+                     {"repeat": repeat, "outer_fold": outer_fold, "metric": metric}, {"repeat": 0, "outer_fold": 0})
 
 
-@router.get("/api/assessments/{uuid}/inner", name="api_inner_detail", response_model=context_model(InnerDetailContext),
+@router.get("/api/assessments/{uuid}/inner", name="inner_detail_json", response_model=context_model(InnerDetailContext),
             responses=error_responses(404, 422))
-def inner_detail_json(request: Request, uuid: str, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
+def inner_detail_json(reader: ReaderDep, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                       metric: str | None = None):
-    return context_json(inner_detail_context(request.app.state.engine, uuid, repeat=repeat,
-                                             outer_fold=outer_fold, metric=metric))
+    return context_json(inner_detail_context(reader, repeat=repeat, outer_fold=outer_fold, metric=metric))

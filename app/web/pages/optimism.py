@@ -12,18 +12,13 @@ from fastapi.responses import HTMLResponse
 from foldwise import frames
 from foldwise.stats.agreement import rank_agreement
 from foldwise.stats.summaries import optimism_summary, score_summary
-from foldwise.store import (
-    AssessmentRecord,
-    family_winners_for,
-    inner_scores_for,
-    outer_scores_for,
-    winners_for,
-)
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.optimism import optimism_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
-from foldwise.web.lookup import metric_or_422, record_or_404
-from foldwise.web.palette import family_colours
+from foldwise.web.forms import form_page
+from foldwise.web.lookup import ReaderDep, metric_or_422
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -52,11 +47,11 @@ class OptimismContext:
     optimism_figure: str
 
 
-def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "overall") -> OptimismContext:
-    record = record_or_404(engine, uuid)
+def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str = "overall") -> OptimismContext:
+    record = reader.record
     metric = metric_or_422(record, metric)
-    overall = winners_for(engine, uuid, metric=metric)
-    per_family = family_winners_for(engine, uuid, metric=metric)
+    overall = reader.winners(kind="overall", metric=metric)
+    per_family = reader.winners(kind="family", metric=metric)
     families = [family.name for family in record.families]
     summaries = [{"label": "overall winner", "family": None, **_optimism(overall)}]
     if level == "family":
@@ -69,7 +64,7 @@ def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "ove
         message = AGREEMENT_NEEDS_THREE.format(n=len(record.configurations))
     else:
         # Every configuration's inner mean against its outer score: only this needs all inner scores.
-        inner, outer = inner_scores_for(engine, uuid), outer_scores_for(engine, uuid, metric=metric)
+        inner, outer = reader.inner(metric=metric), reader.outer(metric=metric)
         every = frames.winners_frame(inner, outer.assign(every=True), metric, flag="every")
         agreement = [_agreement(int(repeat), int(outer_fold), fold)
                      for (repeat, outer_fold), fold in every.groupby(["repeat", "outer_fold"])]
@@ -79,7 +74,7 @@ def optimism_context(engine, uuid: str, *, metric: str | None, level: str = "ove
         record=record, metric=metric, metrics=record.design.metrics, level=level, families=families,
         colours=colours, points=points, summaries=summaries, agreement=agreement,
         agreement_mean=_agreement_mean(agreement), agreement_message=message,
-        optimism_figure=optimism_figure(points, colours, metric=metric))
+        optimism_figure=optimism_figure(points, colours, family_symbols(families), metric=metric))
 
 
 def _optimism(winners: pd.DataFrame) -> dict:
@@ -114,20 +109,16 @@ def _agreement_mean(agreement: list[dict]) -> dict:
     return means
 
 
-def _context(request: Request, uuid: str, metric, level) -> OptimismContext:
-    return optimism_context(request.app.state.engine, uuid, metric=metric, level=level)
-
-
 @router.get("/assessments/{uuid}/optimism", name="optimism", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def optimism(request: Request, uuid: str, metric: str | None = None,
+def optimism(request: Request, reader: ReaderDep, metric: str | None = None,
              level: Literal["overall", "family"] = "overall"):
-    context = _context(request, uuid, metric, level)
-    return request.app.state.templates.TemplateResponse(request, "optimism.html", {"page": context})
+    return form_page(request, "optimism.html", lambda metric: optimism_context(reader, metric=metric, level=level),
+                     {"metric": metric})
 
 
-@router.get("/api/assessments/{uuid}/optimism", name="api_optimism", response_model=context_model(OptimismContext),
+@router.get("/api/assessments/{uuid}/optimism", name="optimism_json", response_model=context_model(OptimismContext),
             responses=error_responses(404, 422))
-def optimism_json(request: Request, uuid: str, metric: str | None = None,
+def optimism_json(reader: ReaderDep, metric: str | None = None,
                   level: Literal["overall", "family"] = "overall"):
-    return context_json(_context(request, uuid, metric, level))
+    return context_json(optimism_context(reader, metric=metric, level=level))

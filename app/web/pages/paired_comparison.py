@@ -5,20 +5,21 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.paired import compare_paired
-from foldwise.store import AssessmentRecord, fold_sizes_for, outer_scores_for
+from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
-from foldwise.web.lookup import metric_or_422, record_or_404
+from foldwise.web.forms import keep_place, rope_from
+from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
-from foldwise.web.query import Rope
+from foldwise.web.query import ROPE_TEXT, Rope
 from foldwise.web.serialise import plain
 
 router = APIRouter()
@@ -27,7 +28,9 @@ _LISTED = 12  # configuration ids named in an error message before "and N more"
 
 
 @dataclass(frozen=True)
-class Candidate:
+class PairedSide:
+    """One side of the comparison: a family (its fold winners) or one configuration."""
+
     value: str  # as written in the URL: a family name or a configuration id
     kind: str   # "family" (its fold winners' outer scores) or "configuration" (its own outer scores)
     family: str
@@ -40,10 +43,10 @@ class PairedComparisonContext:
     metric: str
     metrics: list[str]
     rope: float
-    a: Candidate
-    b: Candidate
-    families: list[Candidate]
-    configurations: list[Candidate]  # empty unless every configuration was refit on every outer fold
+    a: PairedSide
+    b: PairedSide
+    families: list[PairedSide]
+    configurations: list[PairedSide]  # empty unless every configuration was refit on every outer fold
     colours: dict[str, str]
     result: dict  # compare_paired's output, JSON-safe
     folds: list[dict]  # repeat, outer_fold, a, b, diff
@@ -51,27 +54,28 @@ class PairedComparisonContext:
     posterior_figure: str
 
 
-def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None, metric: str | None,
+def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str | None, metric: str | None,
                               rope: float) -> PairedComparisonContext:
-    record = record_or_404(engine, uuid)
+    record = reader.record
     metric = metric_or_422(record, metric)
     # Every view below reads this one metric, and only the fold winners' rows and those of the two sides.
-    outer = outer_scores_for(engine, uuid, metric=metric, winners="either", configs=[v for v in (a, b) if v])
-    families = [Candidate(family.name, "family", family.name, family.name) for family in record.families]
-    configurations = [Candidate(config.id, "configuration", config.family,
+    outer = reader.outer(metric=metric, winners="either", configs=[v for v in (a, b) if v])
+    families = [PairedSide(family.name, "family", family.name, family.name) for family in record.families]
+    configurations = [PairedSide(config.id, "configuration", config.family,
                                 f"{config.family} ({params_text(config.params)})")
                       for config in record.configurations] if record.design.refit_all else []
     a, b = _defaults(outer, metric, [family.value for family in families], record.n_folds, a or None, b or None)
     first, second = (_candidate(record, families, configurations, value, side)
                      for value, side in ((a, "a"), (b, "b")))
-    sizes = fold_sizes_for(engine, uuid)
+    sizes = reader.fold_sizes()
     scores_a, scores_b = (_scores(outer, metric, side, sizes.index) for side in (first, second))
     try:
         result = compare_paired(scores_a.to_numpy(), scores_b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
                                 n_test=sizes["n_test"].to_numpy(), rope=rope,
                                 names=(first.label, second.label))
     except ValueError as error:
-        raise HTTPException(422, f"cannot compare a={a!r} with b={b!r} on {metric!r}: {error}") from None
+        raise refusal(422, f"cannot compare a={a!r} with b={b!r} on {metric!r}: {error}; choose another b",
+                      loc=["query", "b"]) from None
     colours = family_colours([family.value for family in families])
     pair_colours = (colours[first.family], colours[second.family])
     folds = fold_pairs(scores_a, scores_b)
@@ -80,24 +84,30 @@ def paired_comparison_context(engine, uuid: str, *, a: str | None, b: str | None
         record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
         families=families, configurations=configurations, colours=colours,
         result={key: plain(value) for key, value in result.items()}, folds=folds,
-        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours),
-        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
+        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours,
+                                                   metric=metric),
+        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours, metric=metric))
 
 
 @router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
-def paired_comparison(request: Request, uuid: str, a: str | None = None, b: str | None = None,
-                      metric: str | None = None, rope: Rope = 0.01):
-    context = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
-    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
+def paired_comparison(request: Request, reader: ReaderDep, a: str | None = None, b: str | None = None,
+                      metric: str | None = None, rope: str | None = Query(None, description=ROPE_TEXT)):
+    # The form keeps its place: a value the comparison cannot use is shown beside its field.
+    def build(a, b, metric, rope):
+        return paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope_from(rope))
+
+    context, form = keep_place(build, {"a": a, "b": b, "metric": metric, "rope": rope}, {})
+    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html",
+                                                        {"page": context, "form": form}, status_code=form.status)
 
 
 @router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
             responses=error_responses(404, 422))
-def paired_comparison_json(request: Request, uuid: str, a: str | None = None, b: str | None = None,
+def paired_comparison_json(reader: ReaderDep, a: str | None = None, b: str | None = None,
                            metric: str | None = None, rope: Rope = 0.01):
     """Paired tests of a − b over every outer fold of every repeat (a, b: families or configuration ids)."""
-    page = paired_comparison_context(request.app.state.engine, uuid, a=a, b=b, metric=metric, rope=rope)
+    page = paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope)
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
             "a": page.a.value, "a_kind": page.a.kind, "a_label": page.a.label,
             "b": page.b.value, "b_kind": page.b.kind, "b_label": page.b.label,
@@ -117,26 +127,27 @@ def _defaults(outer: pd.DataFrame, metric: str, families: list[str], n_folds: in
     return a, b
 
 
-def _candidate(record: AssessmentRecord, families: list[Candidate], configurations: list[Candidate],
-               value: str, side: str) -> Candidate:
+def _candidate(record: AssessmentRecord, families: list[PairedSide], configurations: list[PairedSide],
+               value: str, side: str) -> PairedSide:
     for candidate in [*families, *configurations]:
         if candidate.value == value:
             return candidate
     names = [family.value for family in families]
     if any(config.id == value for config in record.configurations):
-        raise HTTPException(422, f"{side}={value!r} is a configuration, but this assessment refit only the "
-                                 f"family winners on each outer fold (design.refit_all is false), so a "
-                                 f"configuration has no outer score of its own; compare families: {names}")
-    known = f"families {names}"
+        raise refusal(422, f"{side}={value!r} is a configuration, but this assessment refit only the "
+                           f"family winners on each outer fold (design.refit_all is false), so a "
+                           f"configuration has no outer score of its own; compare families: {', '.join(names)}",
+                      loc=["query", side])
+    known = f"families {', '.join(names)}"
     if configurations:
         ids = [config.value for config in configurations]
         more = f" and {len(ids) - _LISTED} more" if len(ids) > _LISTED else ""
-        known += f" or configuration ids {ids[:_LISTED]}{more}"
-    raise HTTPException(422, f"{side}={value!r} is neither a family nor a configuration of this assessment; "
-                             f"choose one of the {known}")
+        known += f" or configuration ids {', '.join(ids[:_LISTED])}{more}"
+    raise refusal(422, f"{side}={value!r} is neither a family nor a configuration of this assessment; "
+                       f"choose one of the {known}", loc=["query", side])
 
 
-def _scores(outer: pd.DataFrame, metric: str, candidate: Candidate, folds: pd.Index) -> pd.Series:
+def _scores(outer: pd.DataFrame, metric: str, candidate: PairedSide, folds: pd.Index) -> pd.Series:
     if candidate.kind == "family":
         return family_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]
     return config_fold_scores(outer, metric, [candidate.value], folds=folds)[candidate.value]
