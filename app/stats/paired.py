@@ -218,8 +218,30 @@ def wilcoxon_signed_rank(a, b) -> WilcoxonResult:
     return WilcoxonResult(stat=float(result.statistic), p=float(result.pvalue))
 
 
+@dataclass(frozen=True)
+class PairedResult:
+    """``compare_paired``'s answer: the three paired tests of a − b and a verdict (see its docstring)."""
+
+    n: int  # pairs used
+    n_missing: int  # pairs dropped because a score was NaN
+    mean_diff: float
+    sd_diff: float
+    corrected_t: float  # infinite when every difference is the same non-zero value
+    corrected_p: float
+    df: int
+    bayes_a: float  # P(a better by more than the ROPE)
+    bayes_rope: float
+    bayes_b: float
+    posterior_loc: float
+    posterior_scale: float
+    wilcoxon_stat: float
+    wilcoxon_p: float
+    identical: bool  # every difference zero
+    verdict: str
+
+
 def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
-                   names: tuple[str, str] = ("a", "b")) -> dict:
+                   names: tuple[str, str] = ("a", "b")) -> PairedResult:
     r"""Compare two candidates on the same outer folds with all three paired tests and a verdict.
 
     Parameters
@@ -236,7 +258,7 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
 
     Returns
     -------
-    dict
+    PairedResult
         ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``corrected_t``, ``corrected_p``, ``df``,
         ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
         ``wilcoxon_stat``, ``wilcoxon_p``, ``identical`` (every difference zero) and ``verdict`` (a
@@ -263,9 +285,9 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     Examples
     --------
     >>> out = compare_paired([0.8, 0.9, 0.7], [0.8, 0.9, 0.7], n_train=80, n_test=20)
-    >>> out["identical"], out["corrected_p"], out["bayes_rope"]
+    >>> out.identical, out.corrected_p, out.bayes_rope
     (True, 1.0, 1.0)
-    >>> out["verdict"]
+    >>> out.verdict
     'no difference: the two candidates scored identically on every outer fold'
     """
     _check_rope(rope)
@@ -275,16 +297,13 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     bayes = bayesian_correlated_ttest(a, b, rho=mean_test / (mean_train + mean_test), rope=rope)
     wilcoxon = wilcoxon_signed_rank(a, b)
     identical = bool(np.all(d == 0))
-    return {
-        "n": ttest.n, "n_missing": n_dropped,
-        "mean_diff": ttest.mean_diff, "sd_diff": ttest.sd_diff,
-        "corrected_t": ttest.t, "corrected_p": ttest.p, "df": ttest.df,
-        "bayes_a": bayes.p_a, "bayes_rope": bayes.p_rope, "bayes_b": bayes.p_b,
-        "posterior_loc": bayes.loc, "posterior_scale": bayes.scale,
-        "wilcoxon_stat": wilcoxon.stat, "wilcoxon_p": wilcoxon.p,
-        "identical": identical,
-        "verdict": _verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names),
-    }
+    return PairedResult(
+        n=ttest.n, n_missing=n_dropped, mean_diff=ttest.mean_diff, sd_diff=ttest.sd_diff,
+        corrected_t=ttest.t, corrected_p=ttest.p, df=ttest.df,
+        bayes_a=bayes.p_a, bayes_rope=bayes.p_rope, bayes_b=bayes.p_b,
+        posterior_loc=bayes.loc, posterior_scale=bayes.scale,
+        wilcoxon_stat=wilcoxon.stat, wilcoxon_p=wilcoxon.p, identical=identical,
+        verdict=_verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names))
 
 
 def _differences(a, b, *, what: str) -> tuple[np.ndarray, int, np.ndarray]:

@@ -6,6 +6,7 @@ import numpy as np
 import plotly.graph_objects as go
 from scipy import stats
 
+from foldwise.stats.paired import PairedResult
 from foldwise.web.charts.base import INK, MUTED, figure_json, styled
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
@@ -40,9 +41,9 @@ def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str,
     return figure_json(figure)
 
 
-def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str]) -> str:
+def posterior_figure(result: PairedResult, *, rope: float, names: tuple[str, str], colours: tuple[str, str]) -> str:
     """Density of the Student posterior of the mean difference a − b, ROPE shaded, probabilities labelled."""
-    loc, scale, df = result["posterior_loc"], result["posterior_scale"], result["df"]
+    loc, scale, df = result.posterior_loc, result.posterior_scale, result.df
     figure = go.Figure()
     if scale > 0:
         low = min(stats.t.ppf(0.005, df, loc=loc, scale=scale), -1.5 * rope)
@@ -61,9 +62,9 @@ def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colou
     if scale <= 0:
         annotations.append({"x": loc, "y": 1, "text": "zero spread: the posterior is a point mass",
                             "showarrow": False, "yshift": 12})
-    labels = ((0.0, "left", f"P({_short(names[1])} better) = {_probability(result['bayes_b'])}"),
-              (0.5, "center", f"P(practically equivalent) = {_probability(result['bayes_rope'])}"),
-              (1.0, "right", f"P({_short(names[0])} better) = {_probability(result['bayes_a'])}"))
+    labels = ((0.0, "left", f"P({_short(names[1])} better) = {_probability(result.bayes_b)}"),
+              (0.5, "center", f"P(practically equivalent) = {_probability(result.bayes_rope)}"),
+              (1.0, "right", f"P({_short(names[0])} better) = {_probability(result.bayes_a)}"))
     annotations += [{"x": position, "xref": "paper", "y": 1.1, "yref": "paper", "xanchor": anchor, "text": text,
                      "showarrow": False} for position, anchor, text in labels]
     figure.update_layout(shapes=shapes, annotations=annotations)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 from typing import Annotated
 
 import pandas as pd
@@ -168,7 +168,7 @@ def _compare(kind: str, label: str, in_x: str, in_y: str, a: pd.Series, b: pd.Se
     except ValueError as error:
         row["error"] = str(error)
         return row
-    row["result"] = {key: plain(value) for key, value in result.items()}
+    row["result"] = {key: plain(value) for key, value in asdict(result).items()}
     return row
 
 

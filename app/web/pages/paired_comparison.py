@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
@@ -81,7 +81,7 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
     return PairedComparisonContext(
         record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
         families=families, configurations=configurations, colours=colours,
-        result={key: plain(value) for key, value in result.items()}, folds=folds,
+        result={key: plain(value) for key, value in asdict(result).items()}, folds=folds,
         differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours),
         posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
 
