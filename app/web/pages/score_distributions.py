@@ -32,6 +32,20 @@ Families = Annotated[list[str] | None, Query()]  # repeated (families=a&families
 
 
 @dataclass(frozen=True)
+class ShownSummary:
+    """``stats.summaries.ScoreSummary`` as the page shows it: None where a number is undefined."""
+
+    n: int
+    n_missing: int
+    mean: float | None
+    sd: float | None
+    min: float | None
+    max: float | None
+    ci_low: float | None
+    ci_high: float | None
+
+
+@dataclass(frozen=True)
 class ScoreGroup:
     """One box of the chart and one row of the table: a family's fold winners, or one configuration."""
 
@@ -39,7 +53,7 @@ class ScoreGroup:
     family: str
     config: str | None  # None for a family's fold winners
     params: dict | None
-    summary: dict  # n, n_missing, mean, sd, min, max, ci_low, ci_high (score_summary), None when undefined
+    summary: ShownSummary
     points: list[dict]  # repeat, outer_fold, score, params
 
 
@@ -53,7 +67,7 @@ class DistributionsContext:
     families: list[str]  # every family, in the assessment's order
     selected: list[str]  # the families shown
     colours: dict[str, str]
-    overall: dict  # the nested estimate: summary of the overall winners' outer scores
+    overall: ShownSummary  # the nested estimate: summary of the overall winners' outer scores
     family_groups: list[ScoreGroup]  # sorted as asked
     config_groups: list[ScoreGroup]  # by family (family_groups' order), then as asked; empty unless by=config
     message: str  # why the per-configuration view is not shown, or ""
@@ -119,18 +133,19 @@ def _by_fold(rows: pd.DataFrame, folds: pd.MultiIndex) -> pd.Series:
     return rows.set_index(["repeat", "outer_fold"])["score"].reindex(folds)
 
 
-def _summary(scores: pd.Series) -> dict:
+def _summary(scores: pd.Series) -> ShownSummary:
     if not scores.notna().any():
-        return {"n": 0, "n_missing": int(scores.size), "mean": None, "sd": None, "min": None, "max": None,
-                "ci_low": None, "ci_high": None}
-    return {name: plain(value) for name, value in asdict(score_summary(scores.to_numpy(dtype=float))).items()}
+        return ShownSummary(n=0, n_missing=int(scores.size), mean=None, sd=None, min=None, max=None, ci_low=None,
+                            ci_high=None)
+    return ShownSummary(**{name: plain(value)
+                           for name, value in asdict(score_summary(scores.to_numpy(dtype=float))).items()})
 
 
 def _sorted(groups: list[ScoreGroup], sort: str, *, key) -> list[ScoreGroup]:
     if sort == "name":
         return sorted(groups, key=key)
     # Best mean first; groups without a score go last, in their given order.
-    return sorted(groups, key=lambda group: (group.summary["mean"] is None, -(group.summary["mean"] or 0.0)))
+    return sorted(groups, key=lambda group: (group.summary.mean is None, -(group.summary.mean or 0.0)))
 
 
 @router.get("/assessments/{uuid}/distributions", name="score_distributions", response_class=HTMLResponse,
