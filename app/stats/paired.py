@@ -13,6 +13,7 @@ import numpy as np
 from scipy import stats
 
 from ._arrays import is_constant, mean_fold_size, paired_scores, require_pairs
+from .intervals import corrected_t_interval
 
 # A verdict names an outcome only when its posterior probability reaches this (common practice).
 _DECISIVE = 0.95
@@ -218,30 +219,8 @@ def wilcoxon_signed_rank(a, b) -> WilcoxonResult:
     return WilcoxonResult(stat=float(result.statistic), p=float(result.pvalue))
 
 
-@dataclass(frozen=True)
-class PairedResult:
-    """``compare_paired``'s answer: the three paired tests of a − b and a verdict (see its docstring)."""
-
-    n: int  # pairs used
-    n_missing: int  # pairs dropped because a score was NaN
-    mean_diff: float
-    sd_diff: float
-    corrected_t: float  # infinite when every difference is the same non-zero value
-    corrected_p: float
-    df: int
-    bayes_a: float  # P(a better by more than the ROPE)
-    bayes_rope: float
-    bayes_b: float
-    posterior_loc: float
-    posterior_scale: float
-    wilcoxon_stat: float
-    wilcoxon_p: float
-    identical: bool  # every difference zero
-    verdict: str
-
-
 def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
-                   names: tuple[str, str] = ("a", "b")) -> PairedResult:
+                   names: tuple[str, str] = ("a", "b"), level: float = 0.95) -> dict:
     r"""Compare two candidates on the same outer folds with all three paired tests and a verdict.
 
     Parameters
@@ -255,12 +234,15 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
         Half-width of the region of practical equivalence, in score units; ``rope >= 0``.
     names : tuple of str, default ("a", "b")
         How the verdict names the two candidates.
+    level : float, default 0.95
+        Level of the corrected interval of the mean difference.
 
     Returns
     -------
-    PairedResult
-        ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``corrected_t``, ``corrected_p``, ``df``,
-        ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
+    dict
+        ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``diff_low`` and ``diff_high`` (the corrected
+        interval of the mean difference at ``level``, given as ``diff_level``), ``corrected_t``,
+        ``corrected_p``, ``df``, ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
         ``wilcoxon_stat``, ``wilcoxon_p``, ``identical`` (every difference zero) and ``verdict`` (a
         plain sentence drawn from the Bayesian probabilities).
 
@@ -269,9 +251,16 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     The corrected t-test (Nadeau and Bengio, 2003) uses :math:`n_\text{test}/n_\text{train}`; the
     Bayesian correlated t-test (Corani and Benavoli, 2015) uses
     :math:`\rho = n_\text{test}/(n_\text{train} + n_\text{test})`, computed from the mean fold sizes.
+    The interval of the mean difference is the acceptance region of the corrected t-test,
+
+    .. math:: \bar d \pm t_{(1+\text{level})/2,\,J-1}\sqrt{(1/J + n_\text{test}/n_\text{train})\,s^2},
+
+    with :math:`J - 1` degrees of freedom (:func:`foldwise.stats.intervals.corrected_t_interval` on the
+    differences), so it excludes 0 exactly when the test's p is below ``1 - level``.
     The verdict claims an outcome only when its posterior probability reaches 0.95, otherwise it says
-    the data do not decide and gives the three probabilities; probabilities are rounded down so the
-    sentence never overstates. Zero-variance cases follow the conventions of the three tests.
+    the data do not decide and gives the three probabilities, written by :func:`probability_text` as
+    the pages write them (three decimals, rounded down so the sentence never overstates).
+    Zero-variance cases follow the conventions of the three tests.
 
     References
     ----------
@@ -285,9 +274,9 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     Examples
     --------
     >>> out = compare_paired([0.8, 0.9, 0.7], [0.8, 0.9, 0.7], n_train=80, n_test=20)
-    >>> out.identical, out.corrected_p, out.bayes_rope
+    >>> out["identical"], out["corrected_p"], out["bayes_rope"]
     (True, 1.0, 1.0)
-    >>> out.verdict
+    >>> out["verdict"]
     'no difference: the two candidates scored identically on every outer fold'
     """
     _check_rope(rope)
@@ -297,13 +286,20 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     bayes = bayesian_correlated_ttest(a, b, rho=mean_test / (mean_train + mean_test), rope=rope)
     wilcoxon = wilcoxon_signed_rank(a, b)
     identical = bool(np.all(d == 0))
-    return PairedResult(
-        n=ttest.n, n_missing=n_dropped, mean_diff=ttest.mean_diff, sd_diff=ttest.sd_diff,
-        corrected_t=ttest.t, corrected_p=ttest.p, df=ttest.df,
-        bayes_a=bayes.p_a, bayes_rope=bayes.p_rope, bayes_b=bayes.p_b,
-        posterior_loc=bayes.loc, posterior_scale=bayes.scale,
-        wilcoxon_stat=wilcoxon.stat, wilcoxon_p=wilcoxon.p, identical=identical,
-        verdict=_verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names))
+    full = np.full(keep.size, np.nan)
+    full[keep] = d
+    interval = corrected_t_interval(full, n_train=n_train, n_test=n_test, level=level)
+    return {
+        "n": ttest.n, "n_missing": n_dropped,
+        "mean_diff": ttest.mean_diff, "sd_diff": ttest.sd_diff,
+        "diff_low": interval.low, "diff_high": interval.high, "diff_level": interval.level,
+        "corrected_t": ttest.t, "corrected_p": ttest.p, "df": ttest.df,
+        "bayes_a": bayes.p_a, "bayes_rope": bayes.p_rope, "bayes_b": bayes.p_b,
+        "posterior_loc": bayes.loc, "posterior_scale": bayes.scale,
+        "wilcoxon_stat": wilcoxon.stat, "wilcoxon_p": wilcoxon.p,
+        "identical": identical,
+        "verdict": _verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names),
+    }
 
 
 def _differences(a, b, *, what: str) -> tuple[np.ndarray, int, np.ndarray]:
@@ -339,29 +335,34 @@ def _verdict(bayes: BayesResult, *, rope: float, constant: bool, names: tuple[st
                        f"more than the ROPE ({rope:g})")
         return f"{finding}; with zero spread the posterior is degenerate, so no probability is given"
     if bayes.p_rope >= _DECISIVE:
-        return f"practically equivalent with probability {_floor_probability(bayes.p_rope)} {at_rope}"
+        return f"practically equivalent with probability {probability_text(bayes.p_rope)} {at_rope}"
     for p, winner, loser in ((bayes.p_a, a, b), (bayes.p_b, b, a)):
         if p >= _DECISIVE:
             return (f"{winner} better than {loser} by more than the ROPE with probability "
-                    f"{_floor_probability(p)} {at_rope}")
+                    f"{probability_text(p)} {at_rope}")
     return (f"the data do not decide {at_rope}: P({a} better) {_relation(bayes.p_a)}, "
             f"P(practically equivalent) {_relation(bayes.p_rope)}, P({b} better) {_relation(bayes.p_b)}")
 
 
 def _relation(p: float) -> str:
-    shown = _floor_probability(p)
+    shown = probability_text(p)
     return shown if shown[0] in "<>" else f"= {shown}"
 
 
-def _floor_probability(p: float) -> str:
-    # Rounded down, and never shown as 0 or 1 unless it is exactly that, so the sentence never overstates.
+def probability_text(p: float) -> str:
+    """A probability as the verdict and the pages write it: three decimals, rounded down, and never shown as 0
+    or 1 unless it is exactly that, so no sentence or card overstates ("> 0.999", "< 0.001").
+
+    >>> probability_text(0.6179), probability_text(0.99996), probability_text(0.0), probability_text(0.95)
+    ('0.617', '> 0.999', '0', '0.950')
+    """
     if p in (0.0, 1.0):
         return f"{p:.0f}"
-    if p > 0.99:
-        return "> 0.99"
-    if p < 0.01:
-        return "< 0.01"
-    return f"{math.floor(p * 100 + 1e-9) / 100:.2f}"
+    if p > 0.999:
+        return "> 0.999"
+    if p < 0.001:
+        return "< 0.001"
+    return f"{math.floor(p * 1000 + 1e-9) / 1000:.3f}"
 
 
 def _check_rope(rope) -> None:

@@ -7,7 +7,7 @@ script reads is what a person sees.
 from __future__ import annotations
 
 from collections import Counter
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -79,7 +79,7 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
         comparison = compare_paired(mine.to_numpy(), selection.to_numpy(),
                                     n_train=sizes["n_train"].to_numpy(), n_test=sizes["n_test"].to_numpy(),
                                     rope=rope, names=("the ensemble", "the selection procedure"))
-        comparison, comparison_note = {key: plain(value) for key, value in asdict(comparison).items()}, None
+        comparison, comparison_note = {key: plain(value) for key, value in comparison.items()}, None
     except ValueError as error:
         comparison, comparison_note = None, f"no paired comparison: {error}"
     folds = [{"repeat": pair["repeat"], "outer_fold": pair["outer_fold"], "ensemble": pair["a"],
