@@ -23,7 +23,7 @@ def inner_frame(payload: AssessmentPayload) -> pd.DataFrame:
     columns = payload.inner_scores
     frame = pd.DataFrame({
         "repeat": columns.repeat, "outer_fold": columns.outer_fold, "inner_fold": columns.inner_fold,
-        "config_index": columns.config, "metric_index": columns.metric,
+        "config_position": columns.config, "metric_position": columns.metric,
         "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
         "score_time": _floats(columns.score_time),
     })
@@ -36,7 +36,7 @@ def final_frame(payload: AssessmentPayload) -> pd.DataFrame:
         return pd.DataFrame({name: [] for name in FINAL_COLUMNS})
     columns = payload.final.inner_scores
     frame = pd.DataFrame({
-        "inner_fold": columns.inner_fold, "config_index": columns.config, "metric_index": columns.metric,
+        "inner_fold": columns.inner_fold, "config_position": columns.config, "metric_position": columns.metric,
         "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
         "score_time": _floats(columns.score_time),
     })
@@ -47,7 +47,7 @@ def outer_frame(payload: AssessmentPayload) -> pd.DataFrame:
     columns = payload.outer_scores
     frame = pd.DataFrame({
         "repeat": columns.repeat, "outer_fold": columns.outer_fold,
-        "config_index": columns.config, "metric_index": columns.metric,
+        "config_position": columns.config, "metric_position": columns.metric,
         "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
         "score_time": _floats(columns.score_time),
     })
@@ -55,7 +55,7 @@ def outer_frame(payload: AssessmentPayload) -> pd.DataFrame:
     sizes = pd.DataFrame([(f.repeat, f.outer_fold, f.n_train, len(f.test_indices)) for f in payload.outer_folds],
                          columns=["repeat", "outer_fold", "n_train", "n_test"])
     frame = frame.merge(sizes, on=["repeat", "outer_fold"], how="left")
-    keys = list(zip(frame["repeat"], frame["outer_fold"], frame["config_index"], strict=True))
+    keys = list(zip(frame["repeat"], frame["outer_fold"], frame["config_position"], strict=True))
     family = {(c.repeat, c.outer_fold, c.config) for c in payload.family_winners}
     overall = {(c.repeat, c.outer_fold, c.config) for c in payload.overall_winners}
     frame["family_winner"] = [key in family for key in keys]
@@ -115,9 +115,9 @@ def _floats(values: list) -> np.ndarray:
 
 def _name_configs(frame: pd.DataFrame, payload: AssessmentPayload) -> pd.DataFrame:
     configs = payload.configurations
-    index = frame["config_index"].to_numpy()
-    frame["family"] = [configs[i].family for i in index]
-    frame["config"] = [configs[i].id for i in index]
-    frame["params"] = [configs[i].params for i in index]
-    frame["metric"] = [payload.design.metrics[i] for i in frame["metric_index"]]
+    positions = frame["config_position"].to_numpy()
+    frame["family"] = [configs[i].family for i in positions]
+    frame["config"] = [configs[i].id for i in positions]
+    frame["params"] = [configs[i].params for i in positions]
+    frame["metric"] = [payload.design.metrics[i] for i in frame["metric_position"]]
     return frame

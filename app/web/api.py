@@ -19,6 +19,7 @@ from foldwise.web.answers import (
     Pushed,
     WinnerRow,
 )
+from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses
 from foldwise.web.lookup import ReaderDep, StoreDep, metric_or_422
 from foldwise.web.pages.assessment_detail import assessment_context
@@ -67,7 +68,7 @@ def assessment_detail_json(reader: ReaderDep, metric: str | None = None):
         "design_text": page.design, "families": [family.model_dump() for family in record.families],
         "configurations": [config.model_dump() for config in record.configurations],
         "fingerprint": record.fingerprint, "versions": record.versions, "seeds": record.seeds,
-        "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": page.estimate,
+        "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": context_json(page.estimate),
         "family_summary": page.summary, "n_failures": page.n_failures, "failures": page.failures,
         "headline": asdict(page.headline), "shipping": shipping_json(page.shipping),
     }

@@ -7,6 +7,7 @@ script reads is what a person sees.
 from __future__ import annotations
 
 from collections import Counter
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -23,8 +24,36 @@ from foldwise.web.serialise import plain
 _LISTED = 12  # configuration ids named in an error message before "and N more"
 
 
+@dataclass(frozen=True)
+class EnsembleResult:
+    """An ensemble's estimate: its outer-fold scores and summary on ``metric``, beside the selection
+    procedure (the overall fold winners) and the best single family, with the paired comparison."""
+
+    uuid: str
+    members: list[str]  # configuration ids, as given
+    member_details: list[dict]  # config, family, params, n_family_wins, n_overall_wins
+    rule: str  # the rule fixed in advance the members follow, or "hand-picked"
+    caution: str
+    voting: str  # "soft", "hard" or "mean"
+    voting_text: str
+    metric: str
+    metric_note: str | None  # why the estimate is not on the selection metric, if it is not
+    fold_scores: list[dict]  # repeat, outer_fold, score (None where a member had no prediction)
+    mean: float | None
+    sd: float | None
+    n: int  # outer folds scored
+    n_missing: int
+    selection: dict  # fold_scores and summary of the overall fold winners
+    best_family: dict  # family, fold_scores and summary of the best family's fold winners
+    folds: list[dict]  # repeat, outer_fold, ensemble, selection, diff, best_family
+    comparison: dict | None  # compare_paired's fields, JSON-safe; None when it cannot be made
+    comparison_note: str | None
+    rope: float
+    metrics: list[dict]  # per recorded metric: its summary, or why it cannot be computed
+
+
 def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: str | None,
-                      rope: float = 0.01) -> dict:
+                      rope: float = 0.01) -> EnsembleResult:
     """The ensemble's outer-fold scores and summary, the rule its members follow, and the comparison."""
     # scikit-learn is imported only when an ensemble is scored, so the server starts without it.
     from foldwise.stats.ensembles import ESTIMATE_CAUTION, VOTING_TEXT, score_ensemble
@@ -57,18 +86,16 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
               "selection": pair["b"], "diff": pair["diff"], "best_family": best_score}
              for pair, best_score in zip(fold_pairs(mine, selection), _numbers(best_scores), strict=True)]
     by_metric = scored.scores.groupby("metric", sort=False)["score"]
-    return {
-        "uuid": record.uuid, "members": list(members), "member_details": _details(record, outer, members),
-        "rule": _rule(record, outer, members), "caution": ESTIMATE_CAUTION,
-        "voting": scored.voting, "voting_text": VOTING_TEXT[scored.voting], "metric": metric,
-        "metric_note": metric_note, "fold_scores": _fold_scores(mine), **_summary(mine),
-        "selection": {"fold_scores": _fold_scores(selection), **_summary(selection)},
-        "best_family": {"family": best, "fold_scores": _fold_scores(best_scores), **_summary(best_scores)},
-        "folds": folds, "comparison": comparison, "comparison_note": comparison_note, "rope": rope,
-        "metrics": [{"metric": name, "available": True, **_summary(scores)} for name, scores in by_metric]
-        + [{"metric": name, "available": False, "reason": reason}
-           for name, reason in scored.unavailable.items()],
-    }
+    return EnsembleResult(
+        uuid=record.uuid, members=list(members), member_details=_details(record, outer, members),
+        rule=_rule(record, outer, members), caution=ESTIMATE_CAUTION, voting=scored.voting,
+        voting_text=VOTING_TEXT[scored.voting], metric=metric, metric_note=metric_note,
+        fold_scores=_fold_scores(mine), **_summary(mine),
+        selection={"fold_scores": _fold_scores(selection), **_summary(selection)},
+        best_family={"family": best, "fold_scores": _fold_scores(best_scores), **_summary(best_scores)},
+        folds=folds, comparison=comparison, comparison_note=comparison_note, rope=rope,
+        metrics=[{"metric": name, "available": True, **_summary(scores)} for name, scores in by_metric]
+        + [{"metric": name, "available": False, "reason": reason} for name, reason in scored.unavailable.items()])
 
 
 def _check_members(record: AssessmentRecord, members: list[str]) -> None:

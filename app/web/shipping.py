@@ -11,6 +11,7 @@ whole section and the routes that download the two models.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass
+from typing import TYPE_CHECKING
 
 import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
@@ -21,6 +22,9 @@ from foldwise.web.answers import WhatToShip
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import ReaderDep
+
+if TYPE_CHECKING:  # imported where scored: it reads the stored predictions
+    from foldwise.web.ensemble_estimate import EnsembleResult
 
 router = APIRouter()
 
@@ -75,7 +79,7 @@ class FoldWinnerEnsemble:
     """The alternative to shipping one model: the overall fold winners together, scored on the outer folds."""
 
     members: list[str]  # configuration ids, in order of their first win
-    estimate: dict | None  # ensemble_estimate's answer (mean, sd, n, comparison with the selection...)
+    estimate: EnsembleResult | None  # mean, sd, n, the comparison with the selection procedure...
     note: str | None  # why it could not be scored, when it could not
     model_kept: bool  # every member has kept fitted fold winners: the model file can be made
 
@@ -198,7 +202,7 @@ def fold_winners_model(reader: ReaderDep):
     members = list(dict.fromkeys(reader.winners(kind="overall")["config"]))
     if not members:
         raise HTTPException(409, "no outer fold has a winner, so there is no ensemble of them")
-    voting = ensemble_estimate(reader, members, metric=None)["voting"]
+    voting = ensemble_estimate(reader, members, metric=None).voting
     try:
         fitted = prefit_ensemble(reader.record, _Members(members, voting), reader.fitted_models(members))
     except LookupError as error:

@@ -215,3 +215,24 @@ def test_a_push_answers_before_the_checkpoint_and_the_checkpoint_follows(open_cl
                                headers={"content-type": "application/json"})
         assert response.status_code == 201
         assert _main_file_only(path, tmp_path / "copy.db") == 1
+
+
+def test_migrations_import_nothing_of_the_application():
+    """A migration is a record of one schema change: it must not change when the application does, so it
+    copies what it needs instead of importing ``foldwise`` (read with the standard library's ast)."""
+    import ast
+    from pathlib import Path
+
+    import foldwise.store
+
+    versions = Path(foldwise.store.__file__).parent / "migrations" / "versions"
+    scripts = sorted(versions.glob("0*.py"))
+    assert len(scripts) >= 8
+    for script in scripts:
+        imported = set()
+        for node in ast.walk(ast.parse(script.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Import):
+                imported |= {alias.name for alias in node.names}
+            elif isinstance(node, ast.ImportFrom):
+                imported.add(node.module or "")
+        assert not {name for name in imported if name.split(".")[0] == "foldwise"}, script.name

@@ -7,14 +7,15 @@ import plotly.graph_objects as go
 from foldwise.web.charts.base import figure_json, styled
 
 
-def cost_figure(by_family: list[dict], colours: dict[str, str]) -> str:
-    """Stacked bars of rows with ``family``, ``inner_seconds``, ``outer_seconds``; outer refits hatched."""
-    names = [row["family"] for row in by_family]
+def cost_figure(by_family: list, colours: dict[str, str]) -> str:
+    """Stacked bars of rows (``compute_cost.FamilyCost``) with ``family``, ``inner_seconds``,
+    ``outer_seconds``; outer refits hatched."""
+    names = [row.family for row in by_family]
     bar_colours = [colours[name] for name in names]
     figure = go.Figure()
     for level, pattern in (("inner", ""), ("outer", "/")):
         figure.add_trace(go.Bar(
-            x=names, y=[row[f"{level}_seconds"] or 0.0 for row in by_family], name=f"{level} fits",
+            x=names, y=[getattr(row, f"{level}_seconds") or 0.0 for row in by_family], name=f"{level} fits",
             marker={"color": bar_colours,
                     "pattern": {"shape": pattern, "fgcolor": "white", "solidity": 0.35}},
             hovertemplate="%{x}, " + level + " fits: %{y:.2f} s<extra></extra>"))

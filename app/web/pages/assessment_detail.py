@@ -34,12 +34,27 @@ class FoldRow:
 
 
 @dataclass(frozen=True)
+class EstimateSummary:
+    """The nested estimate as the page states it: mean and sd (None where undefined), the range of the
+    overall fold winners' outer scores, the outer folds used of the design's, and that said in words."""
+
+    mean: float | None
+    sd: float | None
+    min: float | None
+    max: float | None
+    n: int
+    n_folds: int
+    n_failed: int
+    described: str
+
+
+@dataclass(frozen=True)
 class AssessmentContext:
     record: AssessmentRecord
     design: str
     metric: str
     metrics: list[str]
-    estimate: dict  # mean, sd, min, max of the overall winners' outer scores
+    estimate: EstimateSummary
     summary: list[dict]
     families: list[str]
     colours: dict[str, str]
@@ -69,9 +84,9 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
             folds.append(FoldRow(*key, row, by_fold.get(key, {})))
     scores = overall["outer_score"]
     nested = nested_estimate(scores.to_numpy(dtype=float), n_folds=record.n_folds)
-    estimate = {"mean": plain(nested.mean), "sd": plain(nested.sd), "min": plain(scores.min()),
-                "max": plain(scores.max()), "n": nested.n_used, "n_folds": nested.n_folds,
-                "n_failed": nested.n_failed, "described": nested.described}
+    estimate = EstimateSummary(mean=plain(nested.mean), sd=plain(nested.sd), min=plain(scores.min()),
+                               max=plain(scores.max()), n=nested.n_used, n_folds=nested.n_folds,
+                               n_failed=nested.n_failed, described=nested.described)
     failures = reader.failures(limit=_FAILURES_SHOWN)
     design, families = record.design, [family.name for family in record.families]
     summary = frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)

@@ -8,7 +8,7 @@ import pandas as pd
 from fastapi import APIRouter, HTTPException, Request
 from fastapi.responses import HTMLResponse
 
-from foldwise.stats.planner import project_wall_time
+from foldwise.stats.planner import Projection, project_wall_time
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.cost import cost_figure
 from foldwise.web.context_json import context_json, context_model
@@ -24,17 +24,59 @@ _MOST = 100_000  # a sanity bound on every planner input
 
 
 @dataclass(frozen=True)
+class FitCounts:
+    """The fits done (failed ones too) and, of them, how many failed."""
+
+    inner: int
+    outer: int
+    total: int
+    inner_failed: int
+    outer_failed: int
+
+
+@dataclass(frozen=True)
+class FamilyCost:
+    """One family's fits and the seconds they took (fit + score time)."""
+
+    family: str
+    n_fits: int
+    inner_seconds: float
+    outer_seconds: float
+    total_seconds: float
+
+
+@dataclass(frozen=True)
+class LevelSeconds:
+    inner_seconds: float
+    outer_seconds: float
+    total_seconds: float
+
+
+@dataclass(frozen=True)
+class PlannedDesign:
+    """The planner's inputs; ``refits_per_fold`` as this assessment refit (every configuration, or each
+    family's winner)."""
+
+    outer: int
+    inner: int
+    repeats: int
+    configs: int
+    cores: int
+    refits_per_fold: int
+
+
+@dataclass(frozen=True)
 class CostContext:
     record: AssessmentRecord
     families: list[str]
     colours: dict[str, str]
-    fits: dict  # inner, outer, total fits done; inner_failed, outer_failed
-    by_family: list[dict]  # family, n_fits, inner_seconds, outer_seconds, total_seconds (fit + score time)
-    by_level: dict  # inner_seconds, outer_seconds, total_seconds
+    fits: FitCounts
+    by_family: list[FamilyCost]
+    by_level: LevelSeconds
     mean_fit_seconds: float | None  # mean fit + score time of one recorded fit
-    plan: dict  # the planner's inputs: outer, inner, repeats, configs, cores, refits_per_fold
-    projection: dict | None  # stats.planner.Projection of the planned design, None without fit times
-    own_projection: dict | None  # the same for this assessment's own design on plan["cores"] cores
+    plan: PlannedDesign
+    projection: Projection | None  # of the planned design; None without fit times
+    own_projection: Projection | None  # the same for this assessment's own design on plan.cores cores
     cost_figure: str
 
 
@@ -48,19 +90,19 @@ def compute_cost_context(reader: AssessmentReader, *, outer: int | None = None, 
     families = [family.name for family in record.families]
     levels = {level: costs[costs["level"] == level] for level in ("inner", "outer")}
     n_inner, n_outer = (int(levels[level]["n_fits"].sum()) for level in ("inner", "outer"))
-    fits = {"inner": n_inner, "outer": n_outer, "total": n_inner + n_outer,
-            "inner_failed": failed.get("inner", 0), "outer_failed": failed.get("outer", 0)}
+    fits = FitCounts(inner=n_inner, outer=n_outer, total=n_inner + n_outer, inner_failed=failed.get("inner", 0),
+                     outer_failed=failed.get("outer", 0))
     by_family = [_family_cost(family, levels["inner"], levels["outer"]) for family in families]
     inner_seconds, outer_seconds = (float(levels[level]["seconds"].sum()) for level in ("inner", "outer"))
-    by_level = {"inner_seconds": inner_seconds, "outer_seconds": outer_seconds,
-                "total_seconds": inner_seconds + outer_seconds}
+    by_level = LevelSeconds(inner_seconds=inner_seconds, outer_seconds=outer_seconds,
+                            total_seconds=inner_seconds + outer_seconds)
     n_timed = int(costs["n_timed"].sum())
     mean_fit = (inner_seconds + outer_seconds) / n_timed if n_timed else None
     cores = cores or DEFAULT_CORES
     own = _design(design.n_outer_folds, design.n_inner_folds, design.n_repeats, len(record.configurations),
                   cores, refit_all=design.refit_all, n_families=len(families))
-    plan = _design(outer or own["outer"], inner or own["inner"], repeats or own["repeats"],
-                   configs or own["configs"], cores, refit_all=design.refit_all, n_families=len(families))
+    plan = _design(outer or own.outer, inner or own.inner, repeats or own.repeats, configs or own.configs, cores,
+                   refit_all=design.refit_all, n_families=len(families))
     colours = family_colours(families)
     return CostContext(
         record=record, families=families, colours=colours, fits=fits, by_family=by_family, by_level=by_level,
@@ -69,31 +111,29 @@ def compute_cost_context(reader: AssessmentReader, *, outer: int | None = None, 
 
 
 def _design(outer: int, inner: int, repeats: int, configs: int, cores: int, *, refit_all: bool,
-            n_families: int) -> dict:
+            n_families: int) -> PlannedDesign:
     # Refit as this assessment did: every configuration, or each family's winner.
     refits = configs if refit_all else min(n_families, configs)
-    return {"outer": outer, "inner": inner, "repeats": repeats, "configs": configs, "cores": cores,
-            "refits_per_fold": refits}
+    return PlannedDesign(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores,
+                         refits_per_fold=refits)
 
 
-def _family_cost(family: str, inner: pd.DataFrame, outer: pd.DataFrame) -> dict:
+def _family_cost(family: str, inner: pd.DataFrame, outer: pd.DataFrame) -> FamilyCost:
     inner, outer = inner[inner["family"] == family], outer[outer["family"] == family]
     inner_seconds, outer_seconds = float(inner["seconds"].sum()), float(outer["seconds"].sum())
-    return {"family": family, "n_fits": int(inner["n_fits"].sum() + outer["n_fits"].sum()),
-            "inner_seconds": inner_seconds, "outer_seconds": outer_seconds,
-            "total_seconds": inner_seconds + outer_seconds}
+    return FamilyCost(family=family, n_fits=int(inner["n_fits"].sum() + outer["n_fits"].sum()),
+                      inner_seconds=inner_seconds, outer_seconds=outer_seconds,
+                      total_seconds=inner_seconds + outer_seconds)
 
 
-def _project(mean_fit: float | None, plan: dict) -> dict | None:
+def _project(mean_fit: float | None, plan: PlannedDesign) -> Projection | None:
     if mean_fit is None:
         return None
     try:
-        projection = project_wall_time(mean_fit, n_outer=plan["outer"], n_inner=plan["inner"],
-                                       n_repeats=plan["repeats"], n_configs=plan["configs"],
-                                       n_cores=plan["cores"], n_refits_per_fold=plan["refits_per_fold"])
+        return project_wall_time(mean_fit, n_outer=plan.outer, n_inner=plan.inner, n_repeats=plan.repeats,
+                                 n_configs=plan.configs, n_cores=plan.cores, n_refits_per_fold=plan.refits_per_fold)
     except ValueError as error:
-        raise HTTPException(422, f"cannot plan {plan}: {error}") from None
-    return asdict(projection)
+        raise HTTPException(422, f"cannot plan {asdict(plan)}: {error}") from None
 
 
 def _counts(**given: str | None) -> dict[str, int | None]:

@@ -12,7 +12,8 @@ from pydantic import BaseModel, ConfigDict, Field
 from foldwise.payload import Name
 from foldwise.store import AssessmentRecord, EnsembleRecord, StoreReader, delete_ensemble
 from foldwise.web.answers import Ensemble, EnsembleEstimate, EnsembleWithEstimate
-from foldwise.web.ensemble_estimate import ensemble_estimate
+from foldwise.web.context_json import context_json
+from foldwise.web.ensemble_estimate import EnsembleResult, ensemble_estimate
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.lookup import EnsembleDep, EnsembleRead, ReaderDep, assessment_or_404
 from foldwise.web.palette import family_colours
@@ -41,7 +42,7 @@ class SaveRequest(BaseModel):
 class EnsembleDetailContext:
     record: AssessmentRecord
     ensemble: EnsembleRecord
-    estimate: dict  # ensemble_estimate's answer for the saved members on the saved metric
+    estimate: EnsembleResult  # for the saved members on the saved metric
     models_kept: bool  # every member has kept fitted fold winners: the prefit model file can be made
     colours: dict[str, str]
     estimate_json: str
@@ -54,7 +55,7 @@ def ensemble_detail_context(read: EnsembleRead) -> EnsembleDetailContext:
     return EnsembleDetailContext(record=record, ensemble=ensemble, estimate=estimate,
                                  models_kept=all(counts.get(member) for member in ensemble.members),
                                  colours=family_colours([family.name for family in record.families]),
-                                 estimate_json=json.dumps(estimate))
+                                 estimate_json=json.dumps(context_json(estimate)))
 
 
 @router.get("/ensembles/{eid}", name="ensemble_detail", response_class=HTMLResponse,
@@ -68,7 +69,7 @@ def ensemble_detail(request: Request, read: EnsembleDep):
             responses=error_responses(404, 422))
 def preview(reader: ReaderDep, body: PreviewRequest):
     """Score the ensemble of ``members`` on every outer fold of every repeat from the stored predictions."""
-    return ensemble_estimate(reader, body.members, metric=body.metric, rope=body.rope)
+    return context_json(ensemble_estimate(reader, body.members, metric=body.metric, rope=body.rope))
 
 
 @router.post("/api/assessments/{uuid}/ensembles", status_code=201, name="save_ensemble", response_model=Ensemble,
@@ -81,8 +82,8 @@ def save(request: Request, uuid: str, body: SaveRequest):
         estimate = ensemble_estimate(reader, body.members, metric=body.metric)
         try:
             ensemble = reader.save_ensemble(name=body.name, note=body.note, members=body.members,
-                                            voting=estimate["voting"], metric=estimate["metric"],
-                                            estimate_mean=estimate["mean"], estimate_sd=estimate["sd"])
+                                            voting=estimate.voting, metric=estimate.metric,
+                                            estimate_mean=estimate.mean, estimate_sd=estimate.sd)
         except ValueError as error:
             raise HTTPException(422, str(error)) from None
     return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
@@ -105,7 +106,7 @@ def listed(request: Request, reader: ReaderDep, format: str = Query("json", patt
 def ensemble_detail_json(request: Request, read: EnsembleDep):
     """A saved ensemble with its estimate recomputed from the stored predictions."""
     page = ensemble_detail_context(read)
-    return _ensemble_json(request, page.ensemble) | {"estimate": page.estimate,
+    return _ensemble_json(request, page.ensemble) | {"estimate": context_json(page.estimate),
                                                      "models_kept": page.models_kept}
 
 
