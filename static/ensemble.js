@@ -9,6 +9,16 @@
   // The page's one chart style (templates/base.html, from app/web/charts/base.py): config, layout, axes.
   function chartStyle() { return JSON.parse(document.getElementById("foldwise-chart-style").textContent); }
 
+  // How a metric reads (app/web/metric_display.py, handed over as data-metric-displays): a loss that
+  // scikit-learn negates (neg_*) is shown as itself. The numbers from the API keep scikit-learn's sign.
+  function displayOf(node, metric) {
+    var holder = node.closest("[data-metric-displays]");
+    var all = holder ? JSON.parse(holder.dataset.metricDisplays) : {};
+    var shown = all[metric] || { name: metric, negated: false, label: metric };
+    return { name: shown.name, label: shown.label,
+             level: function (value) { return value === null || value === undefined || !shown.negated ? value : -value; } };
+  }
+
   function number(value, digits) {
     return value === null || value === undefined ? "–" : value.toFixed(digits === undefined ? 3 : digits);
   }
@@ -48,10 +58,11 @@
   }
 
   function drawChart(target, estimate, colours, plotlyUrl) {
+    var shown = displayOf(target, estimate.metric);
     var labels = estimate.folds.map(function (f) { return "r" + f.repeat + " o" + f.outer_fold; });
     function trace(name, key, colour, dash) {
       return { type: "scatter", mode: "lines+markers", name: name, x: labels,
-               y: estimate.folds.map(function (f) { return f[key]; }),
+               y: estimate.folds.map(function (f) { return shown.level(f[key]); }),
                line: { color: colour, dash: dash || "solid" }, marker: { color: colour } };
     }
     // The ensemble in ink, the selection procedure in grey; the best family keeps its family colour.
@@ -61,7 +72,7 @@
     var layout = Object.assign({}, style.layout, {
       height: 260, margin: { l: 55, r: 15, t: 10, b: 40 }, showlegend: true, legend: { orientation: "h", y: -0.25 },
       xaxis: Object.assign({ title: { text: "outer fold" } }, style.axis),
-      yaxis: Object.assign({ title: { text: estimate.metric } }, style.axis) });
+      yaxis: Object.assign({ title: { text: shown.label } }, style.axis) });
     target.dataset.drawn = "false";
     withPlotly(plotlyUrl, function (Plotly) {
       Plotly.react(target, data, layout, style.config).then(function () {
@@ -74,7 +85,7 @@
     var c = estimate.comparison;
     if (!c) { return estimate.comparison_note || ""; }
     return "Against the selection procedure, paired over " + c.n + " outer folds: mean difference " +
-      number(c.mean_diff, 4) + ", corrected resampled t-test p = " + number(c.corrected_p) +
+      number(c.mean_diff, 4) + " (positive favours the ensemble), corrected resampled t-test p = " + number(c.corrected_p) +
       ", Wilcoxon p = " + number(c.wilcoxon_p) + "; " + c.verdict + ".";
   }
 
@@ -90,7 +101,18 @@
     this.addPicks();
     var self = this;
     this.part("ensemble-metric").addEventListener("change", function () { self.refresh(); });
-    this.part("save-form").addEventListener("submit", function (event) { event.preventDefault(); self.save(); });
+    // Members read as on the rest of the page: family (with its colour) and short parameter text.
+    this.labels = {};
+    this.hooks.forEach(function (hook) {
+      self.labels[hook.dataset.config] = { family: hook.dataset.family, params: hook.dataset.params || "" };
+    });
+    // The Save form is on the page only for a visitor with the write key.
+    var form = this.part("save-form");
+    if (form) {
+      form.addEventListener("submit", function (event) { event.preventDefault(); self.save(false); });
+      this.part("save-again").addEventListener("click", function () { self.save(true); });
+      this.part("save-cancel").addEventListener("click", function () { self.part("duplicate").hidden = true; });
+    }
     // The draft lives in the query string (?member=...), so a copied URL or a reload shows the same one.
     var known = this.hooks.map(function (hook) { return hook.dataset.config; });
     this.chosen = new URLSearchParams(window.location.search).getAll("member").filter(function (config, i, all) {
@@ -155,6 +177,12 @@
       box.checked = chosen.indexOf(box.value) >= 0;
     });
     this.root.dataset.members = String(chosen.length);
+    var saveButton = this.part("save-button");
+    if (saveButton) {
+      saveButton.disabled = !chosen.length;
+      saveButton.title = chosen.length ? "" : "Tick at least one fold winner first";
+      this.part("duplicate").hidden = true;
+    }
     var query = new URLSearchParams(window.location.search);
     query.delete("member");
     chosen.forEach(function (config) { query.append("member", config); });
@@ -197,22 +225,26 @@
       return;
     }
     this.root.dataset.estimate = String(estimate.mean);
-    var big = this.part("estimate");
-    big.textContent = number(estimate.mean);
+    var big = this.part("estimate"), shown = displayOf(this.root, estimate.metric);
+    big.textContent = number(shown.level(estimate.mean));
     if (estimate.sd !== null) { big.appendChild(element("small", " ± " + number(estimate.sd))); }
-    big.appendChild(element("small", " " + estimate.metric + " over " + estimate.n + " outer folds"));
+    big.appendChild(element("small", " " + shown.label + " over " + estimate.n + " outer folds"));
     this.part("caution").textContent = estimate.caution;
     this.part("voting").textContent = "Combined by " + estimate.voting_text + "." +
       (estimate.metric_note ? " " + estimate.metric_note + "." : "");
     var best = estimate.best_family;
     this.part("rule").textContent = "Members: " + estimate.rule + ". Selection procedure " +
-      number(estimate.selection.mean) + " ± " + number(estimate.selection.sd) + "; best single family (" +
-      best.family + ") " + number(best.mean) + " ± " + number(best.sd) + ".";
+      number(shown.level(estimate.selection.mean)) + " ± " + number(estimate.selection.sd) + "; best single family (" +
+      best.family + ") " + number(shown.level(best.mean)) + " ± " + number(best.sd) + ".";
     this.part("comparison").textContent = comparisonText(estimate);
     estimate.member_details.forEach(function (member) {
       var item = element("li");
+      var label = this.labels[member.config] || { family: member.family, params: "" };
+      item.title = member.config;
+      item.dataset.member = member.config;
       item.appendChild(element("span", null, "dot")).style.background = this.colours[member.family] || chartStyle().colours.muted;
-      item.appendChild(element("code", member.config));
+      item.appendChild(element("span", label.family + " "));
+      if (label.params) { item.appendChild(element("code", label.params)); }
       item.appendChild(element("span", " family winner in " + folds(member.n_family_wins) + ", overall in " +
                                folds(member.n_overall_wins), "hint"));
       members.appendChild(item);
@@ -221,7 +253,8 @@
     estimate.folds.forEach(function (fold) {
       var row = element("tr");
       [fold.repeat, fold.outer_fold].forEach(function (value) { row.appendChild(element("td", String(value))); });
-      [fold.ensemble, fold.selection, fold.best_family, fold.diff].forEach(function (value, i) {
+      // Levels as the metric reads; the difference keeps its sign (positive favours the ensemble).
+      [shown.level(fold.ensemble), shown.level(fold.selection), shown.level(fold.best_family), fold.diff].forEach(function (value, i) {
         row.appendChild(element("td", number(value, i === 3 ? 4 : 3), "num"));
       });
       rows.appendChild(row);
@@ -229,19 +262,35 @@
     drawChart(this.part("ensemble-chart"), estimate, this.colours, this.root.dataset.plotlyUrl);
   };
 
-  Builder.prototype.save = function () {
+  // Saving the members of an ensemble already saved asks first ("Save again" or "Cancel").
+  Builder.prototype.save = function (again) {
     var self = this, form = this.part("save-form"), message = this.part("message");
     if (!this.chosen.length) { message.textContent = "Tick at least one fold winner first."; return; }
-    fetch(this.root.dataset.saveUrl, {
-      method: "POST", headers: { "content-type": "application/json", accept: "application/json" },
-      body: JSON.stringify({ name: form.elements.name.value, note: form.elements.note.value,
-                             members: this.chosen, metric: this.part("ensemble-metric").value })
-    }).then(answer).then(function (saved) {
-      message.textContent = "Saved: ";
-      message.appendChild(element("a", saved.name)).href = saved.url;
-      message.appendChild(document.createTextNode(" · "));
-      message.appendChild(element("a", "specification (JSON)")).href = saved.spec_url;
-      self.root.dataset.saved = saved.id;
+    var members = this.chosen.slice().sort().join("\n");
+    var check = again ? Promise.resolve([]) : fetch(this.root.dataset.savedUrl, { headers: { accept: "application/json" } })
+      .then(answer);
+    check.then(function (saved) {
+      var same = saved.filter(function (e) { return e.members.slice().sort().join("\n") === members; });
+      if (same.length) {
+        self.part("duplicate-text").textContent = "An ensemble with exactly these members is already saved (" +
+          same.map(function (e) { return "\u201c" + e.name + "\u201d"; }).join(", ") + "). Save another copy?";
+        self.part("duplicate").hidden = false;
+        self.root.dataset.state = "asking";
+        return null;
+      }
+      self.part("duplicate").hidden = true;
+      return fetch(self.root.dataset.saveUrl, {
+        method: "POST", headers: { "content-type": "application/json", accept: "application/json" },
+        body: JSON.stringify({ name: form.elements.name.value, note: form.elements.note.value,
+                               members: self.chosen, metric: self.part("ensemble-metric").value })
+      }).then(answer).then(function (ensemble) {
+        message.textContent = "Saved: ";
+        message.appendChild(element("a", ensemble.name)).href = ensemble.url;
+        message.appendChild(document.createTextNode(" \u00b7 "));
+        message.appendChild(element("a", "specification (JSON)")).href = ensemble.spec_url;
+        self.root.dataset.saved = ensemble.id;
+        self.root.dataset.state = "ready";
+      });
     }).catch(function (error) { message.textContent = "Not saved: " + error.message; });
   };
 

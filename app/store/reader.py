@@ -82,6 +82,11 @@ class StoreReader:
         or name contains a text (ignoring case)."""
         return assessment_index(self.connection, dataset=dataset, name=name)
 
+    def fingerprints(self) -> dict[str, str]:
+        """Each stored assessment's outer-folds fingerprint, by uuid: equal fingerprints can be paired."""
+        a = tables.assessments
+        return {row.uuid: row.fingerprint for row in self.connection.execute(select(a.c.uuid, a.c.fingerprint))}
+
     def count_assessments(self) -> int:
         """How many assessments the store holds."""
         return int(self.connection.scalar(select(func.count()).select_from(tables.assessments)))

@@ -13,7 +13,10 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from foldwise.web.metric_display import API_ORIENTATION
+
 Number = float | None  # null where the number is undefined (NaN): a failed fit, too few folds
+ORIENTED = "scikit-learn's orientation (greater is better; a neg_* metric is the negated loss)"
 
 
 class _Answer(BaseModel):
@@ -47,9 +50,9 @@ class AssessmentRow(_Answer):
     n_inner_folds: int
     n_configs: int
     families: list[str]
-    selection_metric: str
-    estimate_mean: Number
-    estimate_sd: Number
+    selection_metric: str = Field(description=API_ORIENTATION)
+    estimate_mean: Number = Field(description=f"the nested estimate, in {ORIENTED}")
+    estimate_sd: Number = Field(description="sd of the fold winners' outer scores over the outer folds")
     design: str
     n_ensembles: int
 
@@ -69,8 +72,9 @@ class AssessmentAnswer(_Answer):
     versions: dict[str, str]
     seeds: dict[str, Any]
     total_fit_time: float
-    metric: str
-    nested_estimate: dict[str, Any]
+    metric: str = Field(description=API_ORIENTATION)
+    nested_estimate: dict[str, Any] = Field(description=f"mean, sd, min, max of the fold winners' outer scores, "
+                                                        f"in {ORIENTED}")
     family_summary: list[dict[str, Any]]
     n_failures: int
     failures: list[dict[str, Any]] = Field(description="the first failed fits; n_failures counts them all")
@@ -98,8 +102,8 @@ class _ScoreRow(_Answer):
     family: str
     config: str
     params: dict[str, Any]
-    metric: str
-    score: Number = Field(description="null for a failed fit")
+    metric: str = Field(description=API_ORIENTATION)
+    score: Number = Field(description=f"in {ORIENTED}; null for a failed fit")
     fit_time: Number
     score_time: Number
 
@@ -121,23 +125,24 @@ class WinnerRow(_Answer):
     family: str
     config: str
     params: dict[str, Any]
-    inner_mean: Number
+    inner_mean: Number = Field(description=f"in {ORIENTED}")
     inner_std: Number
-    outer_score: Number
-    optimism: Number = Field(description="inner mean − outer score")
+    outer_score: Number = Field(description=f"in {ORIENTED}")
+    optimism: Number = Field(description="inner mean − outer score, on scikit-learn's scores: positive when the "
+                                         "inner folds flattered the winner, whatever the metric")
 
 
 class PairedFold(_Answer):
     repeat: int
     outer_fold: int
-    a: Number
-    b: Number
-    diff: Number
+    a: Number = Field(description=f"in {ORIENTED}")
+    b: Number = Field(description=f"in {ORIENTED}")
+    diff: Number = Field(description="a − b on scikit-learn's scores: positive favours a, whatever the metric")
 
 
 class PairedComparison(_Answer):
     uuid: str
-    metric: str
+    metric: str = Field(description=API_ORIENTATION)
     rope: float
     a: str
     a_kind: str
@@ -148,7 +153,7 @@ class PairedComparison(_Answer):
     n_repeats: int
     n: int
     n_missing: int
-    mean_diff: Number
+    mean_diff: Number = Field(description="mean of a − b on scikit-learn's scores: positive favours a")
     diff_low: Number = Field(description="corrected interval of the mean difference a − b (Nadeau and Bengio's "
                                          "variance, Student t with n − 1 df): low end")
     diff_high: Number = Field(description="the same interval's high end")
@@ -197,8 +202,8 @@ class EnsembleEstimate(_Answer):
     rule: str
     caution: str
     voting: str
-    metric: str
-    mean: Number
+    metric: str = Field(description=API_ORIENTATION)
+    mean: Number = Field(description=f"in {ORIENTED}")
     sd: Number
     n: int
     n_missing: int
@@ -218,8 +223,8 @@ class Ensemble(_Answer):
     note: str
     created_at: str
     voting: str
-    metric: str
-    estimate_mean: Number
+    metric: str = Field(description=API_ORIENTATION)
+    estimate_mean: Number = Field(description=f"in {ORIENTED}")
     estimate_sd: Number
     members: list[str]
     url: str

@@ -68,5 +68,6 @@ def metric_or_422(record: AssessmentRecord, metric: str | None, *, loc=("query",
     metrics = record.design.metrics
     metric = metric or record.design.selection_metric
     if metric not in metrics:
-        raise refusal(422, f"metric {metric!r} was not recorded; choose one of {metrics}", loc=loc)
+        raise refusal(422, f"metric {metric!r} was not recorded in this assessment; choose one of "
+                           f"{', '.join(metrics)}", loc=loc)
     return metric

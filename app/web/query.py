@@ -10,6 +10,7 @@ from typing import Annotated
 
 from fastapi import Query
 
-Rope = Annotated[float, Query(description="half-width of the region of practical equivalence, in score units",
+ROPE_TEXT = "half-width of the region of practical equivalence, in score units"
+Rope = Annotated[float, Query(description=ROPE_TEXT,
                               json_schema_extra={"minimum": 0})]
 FoldNumber = Annotated[int, Query(description="counted from 0", json_schema_extra={"minimum": 0})]

@@ -79,6 +79,8 @@ class Guard:
             return await self._trade_for_cookie(scope, receive, send, offered)
 
         key = self.keys.find(_bearer(headers) or request.cookies.get(COOKIE))
+        # What the visitor may do, for the pages: a Save form only for a write key (request.state.key_kind).
+        scope.setdefault("state", {})["key_kind"] = key.kind if key else None
         writes = method not in _SAFE_METHODS and not _READ_ONLY_POSTS.match(path)
         if method not in _SAFE_METHODS and not _same_origin(headers, scope):
             return await _reply(scope, receive, send, 403, "cross-origin request refused: state-changing requests "

@@ -195,7 +195,7 @@ def test_unknown_candidate_is_named_with_what_exists(client, repeated):
     response = client.get(f"/api/assessments/{repeated.uuid}/compare", params={"a": "forest", "b": "tree"})
     assert response.status_code == 422
     detail = message(response)
-    assert "'forest'" in detail and "['logistic', 'tree', 'bayes']" in detail
+    assert "'forest'" in detail and "families logistic, tree, bayes" in detail
     assert 'tree:{"max_depth":3}' in detail  # refit_all: configuration ids are listed too
     bad_rope = client.get(f"/api/assessments/{repeated.uuid}/compare", params={"rope": -0.1})
     assert bad_rope.status_code == 422 and "rope must be a finite number >= 0" in message(bad_rope)

@@ -8,23 +8,27 @@ from scipy import stats
 
 from foldwise.stats.paired import probability_text
 from foldwise.web.charts.base import INK, MUTED, figure_json, styled
+from foldwise.web.metric_display import metric_display
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
 
 
 def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str, str],
-                            colours: tuple[str, str]) -> str:
-    """Bars of a − b per outer fold, grouped by repeat, with the zero line and the ±ROPE band."""
+                            colours: tuple[str, str], metric: str) -> str:
+    """Bars of a − b per outer fold (positive favours a), grouped by repeat, with the zero line and the ±ROPE band."""
+    display = metric_display(metric)
+    difference = display.difference(_short(names[0]), _short(names[1]))
     labels = [_fold_label(fold) for fold in folds]
     present = [fold for fold in folds if fold["diff"] is not None]
     against = colours[1] if colours[1] != colours[0] else MUTED
     figure = go.Figure(go.Bar(
         x=[_fold_label(fold) for fold in present], y=[fold["diff"] for fold in present],
         marker_color=[colours[0] if fold["diff"] >= 0 else against for fold in present],
-        customdata=[[fold["repeat"], fold["outer_fold"], fold["a"], fold["b"]] for fold in present],
+        customdata=[[fold["repeat"], fold["outer_fold"], display.value(fold["a"]), display.value(fold["b"])]
+                    for fold in present],
         hovertemplate=(f"repeat %{{customdata[0]}}, outer fold %{{customdata[1]}}<br>{_short(names[0])}: "
-                       f"%{{customdata[2]:.4f}}<br>{_short(names[1])}: %{{customdata[3]:.4f}}"
-                       "<br>difference %{y:.4f}<extra></extra>")))
+                       f"{display.name} %{{customdata[2]:.4f}}<br>{_short(names[1])}: {display.name} "
+                       f"%{{customdata[3]:.4f}}<br>{difference} = %{{y:.4f}}<extra></extra>")))
     missing = [fold for fold in folds if fold["diff"] is None]
     if missing:
         figure.add_scatter(x=[_fold_label(fold) for fold in missing], y=[0] * len(missing), mode="markers",
@@ -36,13 +40,14 @@ def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str,
                for position in range(1, len(folds)) if folds[position]["repeat"] != folds[position - 1]["repeat"]]
     figure.update_layout(shapes=shapes, annotations=annotations)
     figure.update_xaxes(type="category", categoryorder="array", categoryarray=labels)
-    styled(figure, x_title="outer fold (r = repeat, f = fold)",
-           y_title=f"{_short(names[0])} − {_short(names[1])}", height=340)
+    styled(figure, x_title="outer fold (r = repeat, f = fold)", y_title=difference, height=340)
     return figure_json(figure)
 
 
-def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str]) -> str:
-    """Density of the Student posterior of the mean difference a − b, ROPE shaded, probabilities labelled."""
+def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str],
+                     metric: str) -> str:
+    """Density of the Student posterior of the mean difference a − b (positive favours a), ROPE shaded,
+    probabilities labelled."""
     loc, scale, df = result["posterior_loc"], result["posterior_scale"], result["df"]
     figure = go.Figure()
     if scale > 0:
@@ -68,8 +73,8 @@ def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colou
     annotations += [{"x": position, "xref": "paper", "y": 1.1, "yref": "paper", "xanchor": anchor, "text": text,
                      "showarrow": False} for position, anchor, text in labels]
     figure.update_layout(shapes=shapes, annotations=annotations)
-    styled(figure, x_title=f"mean difference {_short(names[0])} − {_short(names[1])}", y_title="density",
-           height=360)
+    difference = metric_display(metric).difference(_short(names[0]), _short(names[1]))
+    styled(figure, x_title=f"mean difference {difference}", y_title="density", height=360)
     figure.update_layout(margin={"t": 60})
     return figure_json(figure)
 
@@ -99,8 +104,9 @@ def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: d
     return figure_json(figure)
 
 
-def paired_strips_figure(comparisons: list[dict], *, rope: float) -> str:
-    """Per comparison of two assessments: each outer fold's difference x − y as a point, the mean as a bar."""
+def paired_strips_figure(comparisons: list[dict], *, rope: float, metric: str) -> str:
+    """Per comparison of two assessments: each outer fold's difference x − y (positive favours x) as a point,
+    the mean as a bar."""
     figure = go.Figure()
     usable = [c for c in comparisons if c["result"] is not None]
     for comparison in usable:
@@ -114,26 +120,30 @@ def paired_strips_figure(comparisons: list[dict], *, rope: float) -> str:
     shapes, annotations = _rope_band(rope, horizontal=False)
     figure.update_layout(shapes=[*shapes, _line("x", 0, {"color": INK, "width": 1})], annotations=annotations)
     figure.update_yaxes(type="category", autorange="reversed")
-    styled(figure, x_title="x − y per outer fold", height=110 + 46 * max(len(usable), 1))
+    styled(figure, x_title=f"{metric_display(metric).difference('x', 'y')} per outer fold",
+           height=110 + 46 * max(len(usable), 1))
     figure.update_layout(margin={"l": 220})
     return figure_json(figure)
 
 
-def intervals_figure(summaries: list[dict], *, colours: dict[str, str]) -> str:
+def intervals_figure(summaries: list[dict], *, colours: dict[str, str], metric: str | None) -> str:
     """Mean and 95% interval of each candidate in each assessment, side by side (unpaired)."""
+    display = metric_display(metric)
     figure = go.Figure()
     for side, symbol in (("x", "circle"), ("y", "diamond")):
         rows = [row for row in summaries if row[side] is not None and row[side]["mean"] is not None]
+        means = [display.value(row[side]["mean"]) for row in rows]
+        spans = [display.span(row[side]["ci_low"], row[side]["ci_high"]) for row in rows]
         figure.add_scatter(
-            x=[row["candidate"] for row in rows], y=[row[side]["mean"] for row in rows], name=side,
+            x=[row["candidate"] for row in rows], y=means, name=side,
             mode="markers", offsetgroup=side,
             marker={"symbol": symbol, "size": 12,
                     "color": [colours.get(row["candidate"], INK) for row in rows]},
             error_y={"type": "data", "symmetric": False, "color": MUTED,
-                     "array": [_gap(row[side]["ci_high"], row[side]["mean"]) for row in rows],
-                     "arrayminus": [_gap(row[side]["mean"], row[side]["ci_low"]) for row in rows]},
-            hovertemplate=f"{side}: %{{x}}<br>mean %{{y:.4f}}<extra></extra>")
-    styled(figure, y_title="mean outer score ± 95% interval", height=360)
+                     "array": [_gap(high, mean) for (_, high), mean in zip(spans, means, strict=True)],
+                     "arrayminus": [_gap(mean, low) for (low, _), mean in zip(spans, means, strict=True)]},
+            hovertemplate=f"{side}: %{{x}}<br>mean {display.name} %{{y:.4f}}<extra></extra>")
+    styled(figure, y_title=f"mean outer {display.label} ± 95% interval", height=360)
     figure.update_layout(scattermode="group", showlegend=True, legend={"title": {"text": "assessment"}})
     return figure_json(figure)
 

@@ -13,6 +13,7 @@ from foldwise.definitions import nested_estimate
 from foldwise.store import AssessmentReader, AssessmentRecord, EnsembleRecord
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
+from foldwise.web.forms import form_page
 from foldwise.web.headline import Headline, headline
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
@@ -89,5 +90,5 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def assessment_detail(request: Request, reader: ReaderDep, metric: str | None = None):
-    context = assessment_context(reader, metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "assessment_detail.html", {"page": context})
+    return form_page(request, "assessment_detail.html", lambda metric: assessment_context(reader, metric=metric),
+                     {"metric": metric})

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from typing import Annotated
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
@@ -16,11 +16,12 @@ from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
 from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
+from foldwise.web.forms import keep_place, rope_from
 from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
-from foldwise.web.query import Rope
+from foldwise.web.query import ROPE_TEXT, Rope
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -42,8 +43,8 @@ class Side:
 
 @dataclass(frozen=True)
 class AssessmentsCompareContext:
-    assessments: list[dict]  # every stored assessment, for the two selects
-    x_choice: str  # what the selects show: the requested uuids, else the two newest assessments
+    assessments: list[dict]  # every stored assessment with its outer-folds fingerprint, for the two selects
+    x_choice: str  # what the selects show: the requested uuids, else a pair whose outer folds match
     y_choice: str
     x: AssessmentRecord | None
     y: AssessmentRecord | None
@@ -61,13 +62,12 @@ class AssessmentsCompareContext:
 def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | None, metric: str | None,
                                 rope: float) -> AssessmentsCompareContext:
     if not (math.isfinite(rope) and rope >= 0):
-        raise HTTPException(422, f"rope must be a finite number >= 0 (in score units, e.g. 0.01); "
-                                 f"got {rope!r}")
-    listing = records(store.assessments())
+        raise refusal(422, f"the ROPE is a half-width in score units, a number of 0 or more (e.g. 0.01); "
+                           f"got {rope!r}", loc=["query", "rope"])
+    fingerprints = store.fingerprints()
+    listing = [row | {"fingerprint": fingerprints.get(row["uuid"], "")} for row in records(store.assessments())]
     if not (x and y):
-        newest = [row["uuid"] for row in listing]
-        x = x or next(iter(newest), "")
-        y = y or next((uuid for uuid in newest if uuid != x), "")
+        x, y = _proposed(listing, x or None, y or None)
         return AssessmentsCompareContext(listing, x, y, None, None, None, [], rope, False, "", [], [],
                                          None, None)
     x_reader, y_reader = (assessment_or_404(store, uuid, loc=("query", name)) for name, uuid in (("x", x), ("y", y)))
@@ -83,16 +83,20 @@ def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | N
         assessments=listing, x_choice=first.uuid, y_choice=second.uuid, x=first, y=second, metric=metric,
         metrics=metrics, rope=rope, paired=not reason, reason=reason, comparisons=comparisons,
         summaries=summaries,
-        differences_figure=paired_strips_figure(comparisons, rope=rope) if comparisons else None,
-        intervals_figure=intervals_figure(summaries, colours=family_colours(families)))
+        differences_figure=paired_strips_figure(comparisons, rope=rope, metric=metric) if comparisons else None,
+        intervals_figure=intervals_figure(summaries, colours=family_colours(families), metric=metric))
 
 @router.get("/compare", name="assessments_compare", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def assessments_compare(request: Request, store: StoreDep, x: str | None = None, y: str | None = None,
-                        metric: str | None = None, rope: Rope = 0.01):
-    context = assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope)
+                        metric: str | None = None, rope: str | None = Query(None, description=ROPE_TEXT)):
+    # The form keeps its place: an assessment, metric or ROPE the page cannot use is named beside its field.
+    def build(x, y, metric, rope):
+        return assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope_from(rope))
+
+    context, form = keep_place(build, {"x": x, "y": y, "metric": metric, "rope": rope}, {})
     return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
-                                                        {"page": context})
+                                                        {"page": context, "form": form}, status_code=form.status)
 
 
 @router.get("/api/compare", name="assessments_compare_json", response_model=AssessmentsComparison,
@@ -108,15 +112,37 @@ def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length
             "comparisons": page.comparisons, "summaries": page.summaries}
 
 
+def _proposed(listing: list[dict], x: str | None, y: str | None) -> tuple[str, str]:
+    """The pair the selects offer when one or both are unset: first one whose outer folds match (newest
+    first), else the newest other assessment."""
+    uuids = [row["uuid"] for row in listing]
+    prints = {row["uuid"]: row["fingerprint"] for row in listing}
+
+    def partner(of: str, other: str | None) -> str:
+        others = [uuid for uuid in uuids if uuid != of]
+        if other:
+            return other
+        return next((uuid for uuid in others if prints[uuid] == prints.get(of)), next(iter(others), ""))
+
+    if x is None and y is None:
+        x = next((uuid for uuid in uuids if any(prints[o] == prints[uuid] for o in uuids if o != uuid)),
+                 next(iter(uuids), ""))
+    if x is None:
+        return partner(y, None), y
+    return x, partner(x, y)
+
+
 def _common_metric(x: AssessmentRecord, y: AssessmentRecord, metric: str | None, common: list[str]) -> str:
     if not common:
-        raise HTTPException(422, f"the two assessments share no metric: x recorded {x.design.metrics}, "
-                                 f"y recorded {y.design.metrics}")
+        raise refusal(422, f"x and y share no metric (x recorded {', '.join(x.design.metrics)}; y recorded "
+                           f"{', '.join(y.design.metrics)}): choose a y scored on one of x's metrics",
+                      loc=["query", "y"])
     if metric is None:
         return common[0]
     if metric not in common:
-        raise HTTPException(422, f"metric {metric!r} must be recorded in both assessments; x recorded "
-                                 f"{x.design.metrics}, y recorded {y.design.metrics}; choose one of {common}")
+        raise refusal(422, f"metric {metric!r} must be recorded in both assessments (x recorded "
+                           f"{', '.join(x.design.metrics)}; y recorded {', '.join(y.design.metrics)}); choose "
+                           f"one of {', '.join(common)}", loc=["query", "metric"])
     return metric
 
 

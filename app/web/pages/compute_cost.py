@@ -12,7 +12,8 @@ from foldwise.stats.planner import project_wall_time
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.cost import cost_figure
 from foldwise.web.context_json import context_json, context_model
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep
 from foldwise.web.palette import family_colours
 
@@ -107,7 +108,7 @@ def _counts(**given: str | None) -> dict[str, int | None]:
         except ValueError:
             counts[name] = 0
         if not 1 <= counts[name] <= _MOST:
-            raise HTTPException(422, f"{name} must be a whole number from 1 to {_MOST}; got {text!r}")
+            raise refusal(422, f"{name} must be a whole number from 1 to {_MOST}; got {text!r}", loc=["query", name])
     return counts
 
 
@@ -115,9 +116,11 @@ def _counts(**given: str | None) -> dict[str, int | None]:
             responses=error_responses(404, 422, html=True))
 def compute_cost(request: Request, reader: ReaderDep, outer: str | None = None, inner: str | None = None,
                  repeats: str | None = None, configs: str | None = None, cores: str | None = None):
-    counts = _counts(outer=outer, inner=inner, repeats=repeats, configs=configs, cores=cores)
-    context = compute_cost_context(reader, **counts)
-    return request.app.state.templates.TemplateResponse(request, "compute_cost.html", {"page": context})
+    def build(**given):
+        return compute_cost_context(reader, **_counts(**given))
+
+    return form_page(request, "compute_cost.html", build,
+                     {"outer": outer, "inner": inner, "repeats": repeats, "configs": configs, "cores": cores})
 
 
 @router.get("/api/assessments/{uuid}/cost", name="compute_cost_json", response_model=context_model(CostContext),

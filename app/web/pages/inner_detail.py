@@ -6,13 +6,14 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.inner import inner_heatmap_figure
 from foldwise.web.context_json import context_json, context_model
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import FoldNumber
@@ -64,7 +65,8 @@ def inner_detail_context(reader: AssessmentReader, *, repeat: int = 0, outer_fol
     for name, value, size in (("repeat", repeat, design.n_repeats),
                               ("outer_fold", outer_fold, design.n_outer_folds)):
         if not 0 <= value < size:
-            raise HTTPException(422, f"{name} {value} is not in this assessment: choose 0..{size - 1}")
+            raise refusal(422, f"{name} {value} is not in this assessment: choose 0..{size - 1}",
+                          loc=["query", name])
     inner = reader.inner(metric=metric, repeat=repeat, outer_fold=outer_fold)
     outer = reader.outer(metric=metric, repeat=repeat, outer_fold=outer_fold)
     families = [family.name for family in record.families]
@@ -86,8 +88,8 @@ def inner_detail_context(reader: AssessmentReader, *, repeat: int = 0, outer_fol
         failures=records(failures.drop(columns=["repeat", "outer_fold"])),
         previous_fold=folds[here - 1] if here > 0 else None,
         next_fold=folds[here + 1] if here + 1 < len(folds) else None,
-        scores_figure=inner_heatmap_figure(configs, colours, value="scores", title=f"inner score ({metric})"),
-        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", title="fit time (s)"))
+        scores_figure=inner_heatmap_figure(configs, colours, value="scores", metric=metric),
+        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", metric=metric))
 
 
 def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int]) -> ConfigRow:
@@ -108,8 +110,11 @@ def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int
             responses=error_responses(404, 422, html=True))
 def inner_detail(request: Request, reader: ReaderDep, repeat: FoldNumber = 0, outer_fold: FoldNumber = 0,
                  metric: str | None = None):
-    context = inner_detail_context(reader, repeat=repeat, outer_fold=outer_fold, metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "inner_detail.html", {"page": context})
+    def build(repeat, outer_fold, metric):
+        return inner_detail_context(reader, repeat=repeat, outer_fold=outer_fold, metric=metric)
+
+    return form_page(request, "inner_detail.html", build,
+                     {"repeat": repeat, "outer_fold": outer_fold, "metric": metric}, {"repeat": 0, "outer_fold": 0})
 
 
 @router.get("/api/assessments/{uuid}/inner", name="inner_detail_json", response_model=context_model(InnerDetailContext),

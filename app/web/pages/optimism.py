@@ -16,8 +16,9 @@ from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.optimism import optimism_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -73,7 +74,7 @@ def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str
         record=record, metric=metric, metrics=record.design.metrics, level=level, families=families,
         colours=colours, points=points, summaries=summaries, agreement=agreement,
         agreement_mean=_agreement_mean(agreement), agreement_message=message,
-        optimism_figure=optimism_figure(points, colours, metric=metric))
+        optimism_figure=optimism_figure(points, colours, family_symbols(families), metric=metric))
 
 
 def _optimism(winners: pd.DataFrame) -> dict:
@@ -112,8 +113,8 @@ def _agreement_mean(agreement: list[dict]) -> dict:
             responses=error_responses(404, 422, html=True))
 def optimism(request: Request, reader: ReaderDep, metric: str | None = None,
              level: Literal["overall", "family"] = "overall"):
-    context = optimism_context(reader, metric=metric, level=level)
-    return request.app.state.templates.TemplateResponse(request, "optimism.html", {"page": context})
+    return form_page(request, "optimism.html", lambda metric: optimism_context(reader, metric=metric, level=level),
+                     {"metric": metric})
 
 
 @router.get("/api/assessments/{uuid}/optimism", name="optimism_json", response_model=context_model(OptimismContext),

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
@@ -13,12 +13,13 @@ from foldwise.stats.paired import compare_paired
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
+from foldwise.web.forms import keep_place, rope_from
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
-from foldwise.web.query import Rope
+from foldwise.web.query import ROPE_TEXT, Rope
 from foldwise.web.serialise import plain
 
 router = APIRouter()
@@ -73,7 +74,8 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
                                 n_test=sizes["n_test"].to_numpy(), rope=rope,
                                 names=(first.label, second.label))
     except ValueError as error:
-        raise HTTPException(422, f"cannot compare a={a!r} with b={b!r} on {metric!r}: {error}") from None
+        raise refusal(422, f"cannot compare a={a!r} with b={b!r} on {metric!r}: {error}; choose another b",
+                      loc=["query", "b"]) from None
     colours = family_colours([family.value for family in families])
     pair_colours = (colours[first.family], colours[second.family])
     folds = fold_pairs(scores_a, scores_b)
@@ -82,16 +84,22 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
         record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
         families=families, configurations=configurations, colours=colours,
         result={key: plain(value) for key, value in result.items()}, folds=folds,
-        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours),
-        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
+        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours,
+                                                   metric=metric),
+        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours, metric=metric))
 
 
 @router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def paired_comparison(request: Request, reader: ReaderDep, a: str | None = None, b: str | None = None,
-                      metric: str | None = None, rope: Rope = 0.01):
-    context = paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope)
-    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html", {"page": context})
+                      metric: str | None = None, rope: str | None = Query(None, description=ROPE_TEXT)):
+    # The form keeps its place: a value the comparison cannot use is shown beside its field.
+    def build(a, b, metric, rope):
+        return paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope_from(rope))
+
+    context, form = keep_place(build, {"a": a, "b": b, "metric": metric, "rope": rope}, {})
+    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html",
+                                                        {"page": context, "form": form}, status_code=form.status)
 
 
 @router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
@@ -126,16 +134,17 @@ def _candidate(record: AssessmentRecord, families: list[PairedSide], configurati
             return candidate
     names = [family.value for family in families]
     if any(config.id == value for config in record.configurations):
-        raise HTTPException(422, f"{side}={value!r} is a configuration, but this assessment refit only the "
-                                 f"family winners on each outer fold (design.refit_all is false), so a "
-                                 f"configuration has no outer score of its own; compare families: {names}")
-    known = f"families {names}"
+        raise refusal(422, f"{side}={value!r} is a configuration, but this assessment refit only the "
+                           f"family winners on each outer fold (design.refit_all is false), so a "
+                           f"configuration has no outer score of its own; compare families: {', '.join(names)}",
+                      loc=["query", side])
+    known = f"families {', '.join(names)}"
     if configurations:
         ids = [config.value for config in configurations]
         more = f" and {len(ids) - _LISTED} more" if len(ids) > _LISTED else ""
-        known += f" or configuration ids {ids[:_LISTED]}{more}"
-    raise HTTPException(422, f"{side}={value!r} is neither a family nor a configuration of this assessment; "
-                             f"choose one of the {known}")
+        known += f" or configuration ids {', '.join(ids[:_LISTED])}{more}"
+    raise refusal(422, f"{side}={value!r} is neither a family nor a configuration of this assessment; "
+                       f"choose one of the {known}", loc=["query", side])
 
 
 def _scores(outer: pd.DataFrame, metric: str, candidate: PairedSide, folds: pd.Index) -> pd.Series:

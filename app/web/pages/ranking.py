@@ -14,6 +14,7 @@ from foldwise.web.answers import Ranking
 from foldwise.web.charts.comparison import ranks_figure
 from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import family_fold_scores
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
@@ -64,8 +65,8 @@ def ranking_context(reader: AssessmentReader, *, metric: str | None) -> RankingC
 @router.get("/assessments/{uuid}/ranking", name="ranking", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))
 def ranking(request: Request, reader: ReaderDep, metric: str | None = None):
-    context = ranking_context(reader, metric=metric)
-    return request.app.state.templates.TemplateResponse(request, "ranking.html", {"page": context})
+    return form_page(request, "ranking.html", lambda metric: ranking_context(reader, metric=metric),
+                     {"metric": metric})
 
 
 @router.get("/api/assessments/{uuid}/ranking", name="ranking_json", response_model=Ranking,

@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass
 from typing import Annotated, Literal
 
 import pandas as pd
-from fastapi import APIRouter, HTTPException, Query, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise.definitions import HEADLINE_LEVEL, HEADLINE_METHOD, headline_interval
@@ -14,10 +14,11 @@ from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.distributions import distribution_figure
 from foldwise.web.context_json import context_json, context_model
-from foldwise.web.errors import error_responses
+from foldwise.web.errors import error_responses, refusal
 from foldwise.web.formatting import params_text
+from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -102,7 +103,7 @@ def score_distributions_context(reader: AssessmentReader, *, metric: str | None,
         selected=selected, colours=colours, overall=overall, interval_method=HEADLINE_METHOD,
         interval_level=HEADLINE_LEVEL, spread_shown=not shape.repeated, family_groups=family_groups,
         config_groups=config_groups, message=message,
-        distributions_figure=distribution_figure(shown, colours, metric=metric))
+        distributions_figure=distribution_figure(shown, colours, family_symbols(names), metric=metric))
 
 
 def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
@@ -114,7 +115,8 @@ def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
         wanted |= {value} if value in names else {part.strip() for part in value.split(",") if part.strip()}
     unknown = sorted(wanted - set(names))
     if unknown:
-        raise HTTPException(422, f"families {unknown} are not in this assessment; choose from {names}")
+        raise refusal(422, f"families {', '.join(unknown)} are not in this assessment; choose from "
+                           f"{', '.join(names)}", loc=["query", "families"])
     return [name for name in names if name in wanted] or names
 
 
@@ -163,9 +165,10 @@ def _sorted(groups: list[ScoreGroup], sort: str, *, key) -> list[ScoreGroup]:
             responses=error_responses(404, 422, html=True))
 def score_distributions(request: Request, reader: ReaderDep, metric: str | None = None, by: By = "family",
                         sort: Sort = "mean", families: Families = None):
-    context = score_distributions_context(reader, metric=metric, by=by, sort=sort, families=families)
-    templates = request.app.state.templates
-    return templates.TemplateResponse(request, "score_distributions.html", {"page": context})
+    def build(metric, families):
+        return score_distributions_context(reader, metric=metric, by=by, sort=sort, families=families)
+
+    return form_page(request, "score_distributions.html", build, {"metric": metric, "families": families})
 
 
 @router.get("/api/assessments/{uuid}/distributions", name="score_distributions_json",
