@@ -319,3 +319,21 @@ def test_a_negated_loss_reads_as_itself_in_the_headline_and_what_to_ship(client)
     assert _text(page, "family-reading").startswith(f"{first['family']} has the best mean outer score "
                                                     f"({-first['mean']:.3f}")
     assert f"RMSE (lower is better) {-assessment.nested_estimate.mean:.3f}" in _text(page, "ship-estimate")
+
+
+@pytest.mark.parametrize("classes", [[], None])
+def test_a_classifier_stored_without_classes_gets_a_reason_not_a_500(client, small_assessment, classes):
+    """A push may leave design.classes empty; the ensemble then cannot be scored, and every view says why."""
+    import json
+    from uuid import uuid4
+
+    document = json.loads(small_assessment.payload.model_dump_json())
+    document["uuid"], document["design"]["classes"] = str(uuid4()), classes
+    assert client.post("/api/assessments", json=document).status_code == 201
+    uuid = document["uuid"]
+    shipping = client.get(f"/api/assessments/{uuid}/what-to-ship")
+    assert shipping.status_code == 200 and shipping.json()["ensemble"]["estimate"] is None
+    assert "cannot be scored" in shipping.json()["ensemble"]["note"]
+    assert client.get(f"/assessments/{uuid}/what-to-ship/ensemble").status_code == 200
+    members = [small_assessment.payload.configurations[0].id]
+    assert client.post(f"/api/assessments/{uuid}/ensembles/preview", json={"members": members}).status_code == 422
