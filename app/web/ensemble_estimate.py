@@ -63,6 +63,9 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
     if metric is not None:
         metric_or_422(record, metric, loc=("body", "metric"))
     design = record.design
+    if design.task == "classification" and not design.classes:
+        raise HTTPException(422, "this assessment recorded no classes (design.classes), so the members' "
+                                 "predicted probabilities and labels cannot be combined into an ensemble's")
     scored = score_ensemble(_fold_members(reader, members), task=design.task, metrics=design.metrics,
                             classes=design.classes)
     metric, metric_note = _metric(design.metrics, scored.unavailable, metric)

@@ -21,6 +21,7 @@ from foldwise.stats.paired import compare_paired
 from foldwise.stats.planner import repeat_narrowing
 from foldwise.store import AssessmentRecord, StoredFinal
 from foldwise.web.fold_scores import family_fold_scores
+from foldwise.web.metric_display import metric_display
 from foldwise.web.serialise import plain
 
 # The best and worst scores a scikit-learn scorer can give, for the names it knows (common practice; from the
@@ -169,7 +170,9 @@ def _reading(record: AssessmentRecord, metric: str, summary: pd.DataFrame, famil
     if ranked.empty:
         return FamilyReading("No family has an outer score on this metric.", None, None, None)
     first = ranked.iloc[0]
-    lead = f"{first['family']} has the best mean outer score ({first['mean']:.3f}, over {first['n']} outer folds)"
+    shown = metric_display(metric)  # the means as the page shows them (a negated loss as itself)
+    lead = (f"{first['family']} has the best mean outer score ({shown.value(first['mean']):.3f}, over {first['n']} "
+            f"outer folds)")
     if len(ranked) < 2:
         return FamilyReading(f"{lead}; no other family has an outer score to compare it with.", None, None, None)
     second = ranked.iloc[1]
@@ -181,4 +184,4 @@ def _reading(record: AssessmentRecord, metric: str, summary: pd.DataFrame, famil
                                  n_test=sizes["n_test"].to_numpy(), rope=_ROPE, names=(a, b))["verdict"]
     except ValueError:  # fewer than two outer folds where both have a score
         verdict = None
-    return FamilyReading(f"{lead}, {gap:.3f} ahead of {b} ({second['mean']:.3f})", a, b, verdict)
+    return FamilyReading(f"{lead}, {gap:.3f} ahead of {b} ({shown.value(second['mean']):.3f})", a, b, verdict)

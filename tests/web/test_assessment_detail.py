@@ -295,3 +295,45 @@ def test_an_interval_past_the_best_score_possible_says_so(client, shipped):
     assert "passes 1, the best score roc_auc can reach" in _text(page, "interval-bound")
     accuracy = client.get(f"/api/assessments/{shipped.uuid}", params={"metric": "accuracy"}).json()["headline"]
     assert (accuracy["interval"]["high"] > 1) == (accuracy["interval"]["past_bound"] == 1.0)
+
+
+def test_a_negated_loss_reads_as_itself_in_the_headline_and_what_to_ship(client):
+    from sklearn.datasets import load_diabetes
+    from sklearn.linear_model import Ridge
+    from sklearn.tree import DecisionTreeRegressor
+
+    Xr, yr = load_diabetes(return_X_y=True)  # bundled open data
+    assessment = foldwise.nested_cv({"ridge": (Ridge(), {"alpha": [0.1, 10.0]}),
+                                     "tree": (DecisionTreeRegressor(random_state=0), {"max_depth": [2]})},
+                                    Xr[::3], yr[::3], outer=3, inner=2, scoring=["neg_root_mean_squared_error"],
+                                    n_jobs=1, progress=False, final=True, name="overview: a loss")
+    _push(client, assessment)
+    page = client.get(f"/assessments/{assessment.uuid}").text
+    body = client.get(f"/api/assessments/{assessment.uuid}").json()["headline"]
+    assert body["estimate"]["mean"] < 0  # the API keeps scikit-learn's orientation
+    assert _text(page, "nested-estimate") == f"{-body['estimate']['mean']:.3f}"  # the page shows RMSE itself
+    low, high = -body["interval"]["high"], -body["interval"]["low"]
+    assert _text(page, "headline-interval").startswith(f"95% interval {low:.3f} to {high:.3f}")
+    assert _text(page, "inner-best") == f"{-body['inner_best']['mean']:.3f}"
+    first = client.get(f"/api/assessments/{assessment.uuid}").json()["family_summary"][0]
+    assert _text(page, "family-reading").startswith(f"{first['family']} has the best mean outer score "
+                                                    f"({-first['mean']:.3f}")
+    assert f"RMSE {-assessment.nested_estimate.mean:.3f}" in _text(page, "ship-estimate")
+
+
+@pytest.mark.parametrize("classes", [[], None])
+def test_a_classifier_stored_without_classes_gets_a_reason_not_a_500(client, small_assessment, classes):
+    """A push may leave design.classes empty; the ensemble then cannot be scored, and every view says why."""
+    import json
+    from uuid import uuid4
+
+    document = json.loads(small_assessment.payload.model_dump_json())
+    document["uuid"], document["design"]["classes"] = str(uuid4()), classes
+    assert client.post("/api/assessments", json=document).status_code == 201
+    uuid = document["uuid"]
+    shipping = client.get(f"/api/assessments/{uuid}/what-to-ship")
+    assert shipping.status_code == 200 and shipping.json()["ensemble"]["estimate"] is None
+    assert "cannot be scored" in shipping.json()["ensemble"]["note"]
+    assert client.get(f"/assessments/{uuid}/what-to-ship/ensemble").status_code == 200
+    members = [small_assessment.payload.configurations[0].id]
+    assert client.post(f"/api/assessments/{uuid}/ensembles/preview", json={"members": members}).status_code == 422
