@@ -90,3 +90,23 @@ def test_no_page_scrolls_sideways_at_1280_or_1440(browser, layout_server):
 
 def _slug(path: str) -> str:
     return "".join(c if c.isalnum() else "-" for c in path.strip("/"))[:60] or "index"
+
+
+def test_a_wide_grid_scrolls_in_its_card_to_the_last_fold_with_the_repeat_column_in_place(browser, layout_server):
+    server, assessments, _ = layout_server
+    context = browser.new_context(viewport={"width": 1280, "height": 800})
+    page, problems = open_watched(context, f"{server.url}/assessments/{assessments[-1].uuid}/fold-winners")
+    scrolled = page.evaluate("""() => {
+      const table = document.querySelector('#winner-grid'), box = table.closest('.scroll');
+      box.scrollLeft = box.scrollWidth;
+      const frame = box.getBoundingClientRect(), heads = table.querySelectorAll('thead th');
+      const first = heads[0].getBoundingClientRect(), last = heads[heads.length - 1].getBoundingClientRect();
+      return {wider: box.scrollWidth > box.clientWidth, lastText: heads[heads.length - 1].textContent,
+              lastInside: last.right <= frame.right + 1 && last.left >= first.right - 1,
+              firstInPlace: Math.abs(first.left - frame.left) <= 1};
+    }""")
+    # 10 outer folds do not fit 1280 px: the grid scrolls inside its card, the last fold can be reached,
+    # and the repeat column stays at the card's left edge.
+    assert scrolled == {"wider": True, "lastText": "Outer fold 9", "lastInside": True, "firstInPlace": True}
+    assert problems == []
+    context.close()
