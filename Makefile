@@ -6,7 +6,7 @@ HOST ?= 127.0.0.1
 PORT ?= 8000
 DEMO_DB ?= .foldwise/demo.db
 
-.PHONY: demo test lint unit browser-deps node-deps pg-start pg-stop bench coverage clean
+.PHONY: demo test lint unit browser-deps node-deps pg-start pg-stop bench coverage floors clean
 
 $(VENV)/.installed-test: pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -68,5 +68,21 @@ bench: $(VENV)/.installed-test
 coverage: $(VENV)/.installed-test
 	$(PY) tests/benchmarks/bench_coverage.py $(COVERAGE_ARGS)
 
+# The lowest versions pyproject.toml allows for the main dependencies, pinned exactly (.ci/floors.py), in
+# their own .floors-venv, running the runner's and the payload's tests: the floors must be what the code
+# really needs. The test tools come at their current versions.
+FLOORS_VENV := .floors-venv
+FLOORS_TESTS := tests/runner tests/test_consistency.py tests/test_packed.py tests/test_wire.py
+floors:
+	$(PYTHON) -m venv $(FLOORS_VENV)
+	$(PYTHON) .ci/floors.py > $(FLOORS_VENV)/floors.txt
+	$(FLOORS_VENV)/bin/python -m pip install --quiet --upgrade pip
+	$(FLOORS_VENV)/bin/python -m pip install --quiet -c $(FLOORS_VENV)/floors.txt -e . pytest hypothesis \
+	  'dask[distributed]' nbclient nbformat ipykernel ipywidgets
+	$(FLOORS_VENV)/bin/python -m pip freeze | grep -iE '^(scikit-learn|numpy|scipy|pandas|pydantic|joblib|skops)=='
+	# starlette's test client at the fastapi floor uses an alias the newest anyio deprecates (tests only)
+	$(FLOORS_VENV)/bin/python -m pytest -p no:cacheprovider \
+	  -W "ignore:The anyio.abc.BlockingPortal alias:DeprecationWarning" $(FLOORS_TESTS)
+
 clean:
-	rm -rf $(VENV) .foldwise build *.egg-info
+	rm -rf $(VENV) $(FLOORS_VENV) .foldwise build *.egg-info

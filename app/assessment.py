@@ -149,7 +149,8 @@ class Assessment:
         from foldwise.ensemble import load_skops
 
         return load_skops(base64.b64decode(final.model_skops), what="the final model",
-                          allowed=[family.estimator_class for family in self.payload.families])
+                          allowed=[family.estimator_class for family in self.payload.families],
+                          libraries=self.payload.design.trusted)
 
     def save(self, target: str) -> bool:
         """Write into a store (a path or SQLAlchemy URL) with no server; True when newly stored."""

@@ -107,7 +107,7 @@ def _send(parts: list[bytes], url: str, *, content_type: str = "application/json
     """POST the body made of ``parts``; the outcome, else the last transport error or ``ServerFailed`` once
     retries ran out, or ``PushRejected`` at once."""
     headers = {"content-type": content_type, "content-length": str(sum(map(len, parts)))}
-    token = token or _write_key()
+    token = token or write_key()
     if token:
         headers["authorization"] = f"Bearer {token}"
     endpoint = url.rstrip("/") + "/api/assessments"
@@ -154,7 +154,7 @@ def _pieces(parts: list[bytes]):
         yield b"".join(held)
 
 
-def _write_key() -> str | None:
+def write_key() -> str | None:
     """$FOLDWISE_KEY, else the write key in this machine's key file (a server on this machine made it)."""
     if os.environ.get("FOLDWISE_KEY"):
         return os.environ["FOLDWISE_KEY"]

@@ -12,8 +12,6 @@ assessment recorded: a store from elsewhere cannot make this machine run its cod
 
 from __future__ import annotations
 
-import builtins
-import importlib
 import json
 import re
 from collections.abc import Iterable
@@ -26,35 +24,38 @@ from sklearn.ensemble import VotingClassifier, VotingRegressor
 
 from foldwise.payload import Configuration, Family
 from foldwise.stats.ensembles import ESTIMATE_CAUTION
+from foldwise.trust import refused_types
 
 SPEC_FORMAT = "foldwise ensemble specification"
 SPEC_VERSION = 1
-_TRUSTED_PACKAGES = ("sklearn", "numpy")
 
 
 class UntrustedTypes(ValueError):
     """A skops file holds types foldwise will not load without being told to."""
 
 
-def load_skops(source: bytes | str | Path, *, allowed: Iterable[str] = (), what: str = "the skops file"):
-    """Load a skops file, trusting only scikit-learn, numpy and builtin classes plus ``allowed``.
+def load_skops(source: bytes | str | Path, *, allowed: Iterable[str] = (), libraries: Iterable[str] = (),
+               what: str = "the skops file"):
+    """Load a skops file, trusting only scikit-learn, numpy and builtin classes plus ``allowed`` and the
+    classes of ``libraries`` (``foldwise.trust``).
 
-    ``allowed`` names further classes by import path (an assessment's own estimator classes).
+    ``allowed`` names further classes by import path (an assessment's own estimator classes);
+    ``libraries`` the top-level modules the user trusted when running it (``design.trusted``).
     Every name must resolve to a class: functions are never trusted beyond skops' own defaults.
     Anything else raises ``UntrustedTypes`` naming the types; a file one trusts can still be read
     with ``skops.io.loads(..., trusted=[...])``.
     """
     data = Path(source).read_bytes() if isinstance(source, str | Path) else source
-    allowed = set(allowed)
-    found = skops.io.get_untrusted_types(data=data)
-    refused = [name for name in found if not _is_trusted_class(name, allowed)]
+    allowed, libraries = set(allowed), sorted(set(libraries))
+    refused = refused_types(data, allowed=allowed, libraries=libraries)
     if refused:
+        trusted = f" nor classes of the libraries trusted when it ran ({libraries})" if libraries else ""
         raise UntrustedTypes(
             f"refused to load {what}: it holds {refused}, which are not scikit-learn, numpy or builtin "
-            f"classes nor estimator classes of the assessment ({sorted(allowed) or 'none recorded'}); "
+            f"classes nor estimator classes of the assessment ({sorted(allowed) or 'none recorded'}){trusted}; "
             f"loading them could run code from the file. If you trust where it came from, read it with "
             f"skops.io.loads(data, trusted={refused!r})")
-    return skops.io.loads(data, trusted=found)
+    return skops.io.loads(data, trusted=skops.io.get_untrusted_types(data=data))
 
 
 def ensemble_spec(record, ensemble) -> dict:
@@ -141,7 +142,7 @@ def prefit_ensemble(record, ensemble, models) -> VotingClassifier | VotingRegres
         base = _member_name(_family_of(record, member), i)
         for model in by_member[member]:
             where = f"the fitted {member} of repeat {model.repeat}, outer fold {model.outer_fold}"
-            fitted = load_skops(model.skops, allowed=allowed, what=where)
+            fitted = load_skops(model.skops, allowed=allowed, libraries=record.design.trusted, what=where)
             named.append((f"{base}_r{model.repeat}_o{model.outer_fold}", FrozenEstimator(fitted)))
             weights.append(1 / len(by_member[member]))
     if record.design.task == "regression":
@@ -176,7 +177,7 @@ def _from_store(ensemble_id, store: str):
             raise LookupError(f"the store keeps no estimator of family {config.family!r} (it was recorded "
                               f"without foldwise.nested_cv, or before estimators were kept); pass the "
                               f"specification and your own space: build_ensemble(spec, X, y, space=...)")
-        estimator = load_skops(stored[config.family], allowed=allowed,
+        estimator = load_skops(stored[config.family], allowed=allowed, libraries=record.design.trusted,
                                what=f"family {config.family!r}'s estimator")
         estimators.append(estimator.set_params(**_settable(estimator, config.params, member)))
     return ensemble_spec(record, ensemble), estimators
@@ -252,17 +253,3 @@ def _family_of(record, member: str) -> str:
 
 def _estimator_classes(families: list[Family]) -> set[str]:
     return {family.estimator_class for family in families if family.estimator_class}
-
-
-def _is_trusted_class(name: str, allowed: set[str]) -> bool:
-    """A class (never a function) of scikit-learn, numpy or builtins, or one of the ``allowed`` classes."""
-    module, _, attribute = name.rpartition(".")
-    if module == "builtins":
-        return isinstance(getattr(builtins, attribute, None), type)
-    if module.split(".")[0] not in _TRUSTED_PACKAGES and name not in allowed:
-        return False
-    try:
-        found = getattr(importlib.import_module(module), attribute, None)
-    except ImportError:
-        return False
-    return isinstance(found, type)

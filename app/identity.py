@@ -31,6 +31,8 @@ def content_digest(payload: AssessmentPayload) -> str:
     part of it, as they are of what is stored. Rows keep their order: it is stored too.
     """
     header = payload.model_dump(mode="json", exclude=set(OUTSIDE_THE_DIGEST | _HASHED_APART))
+    if not header["design"].get("trusted"):  # added later: a document without trust keeps the digest it had
+        header["design"].pop("trusted", None)
     predictions = payload.predictions
     header["predictions"] = {name: [getattr(p, name) for p in predictions] for name in _PREDICTION_FIELDS}
     text = json.dumps(header, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)

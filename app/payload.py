@@ -116,6 +116,10 @@ class Design(_Strict):
     scorers: dict[Text, Text] = Field(default_factory=dict, description="metric -> what it scored, for a "
                                       "metric whose name is not a scikit-learn scorer name (make_scorer(...))")
     classes: list[Label] | None = None
+    trusted: list[Name] = Field(default_factory=list, max_length=100, description="libraries (top-level module "
+                                "names) whose classes the loader trusts in this assessment's kept models, as "
+                                "named by nested_cv(trusted=...); scikit-learn, numpy and the families' estimator "
+                                "classes are trusted without it")
 
     @property
     def selection_metric(self) -> str:

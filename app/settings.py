@@ -17,11 +17,13 @@ class Settings:
     config_dir: Path | None = None  # None: $FOLDWISE_CONFIG or ~/.config/foldwise (holds keys.json)
     require_read_key: bool = False  # always on when bound to an address other than loopback
     max_body_bytes: int = 1 << 30
+    live_stall_seconds: float = 60.0  # a running assessment silent this long is shown as stalled
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None, **overrides) -> Settings:
         """``FOLDWISE_DB`` (path or SQLAlchemy URL), ``FOLDWISE_HOST``, ``FOLDWISE_PORT``,
-        ``FOLDWISE_CONFIG``, ``FOLDWISE_REQUIRE_READ_KEY`` (1 to require), ``FOLDWISE_MAX_BODY_MB``."""
+        ``FOLDWISE_CONFIG``, ``FOLDWISE_REQUIRE_READ_KEY`` (1 to require), ``FOLDWISE_MAX_BODY_MB``,
+        ``FOLDWISE_LIVE_STALL_SECONDS``."""
         from foldwise.store import db_url_from, default_db_url
 
         environ = os.environ if environ is None else environ
@@ -30,7 +32,8 @@ class Settings:
             port=int(environ.get("FOLDWISE_PORT", "8000")),
             config_dir=config_dir_from(environ),
             require_read_key=environ.get("FOLDWISE_REQUIRE_READ_KEY", "") in ("1", "true", "yes"),
-            max_body_bytes=int(float(environ.get("FOLDWISE_MAX_BODY_MB", "1024")) * (1 << 20)))
+            max_body_bytes=int(float(environ.get("FOLDWISE_MAX_BODY_MB", "1024")) * (1 << 20)),
+            live_stall_seconds=float(environ.get("FOLDWISE_LIVE_STALL_SECONDS", "60")))
         given = {key: value for key, value in overrides.items() if value is not None}
         if "db_url" in given:
             given["db_url"] = db_url_from(given["db_url"])

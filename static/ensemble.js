@@ -9,6 +9,16 @@
   // The page's one chart style (templates/base.html, from app/web/charts/base.py): config, layout, axes.
   function chartStyle() { return JSON.parse(document.getElementById("foldwise-chart-style").textContent); }
 
+  // How a metric reads (app/web/metric_display.py, handed over as data-metric-displays): a loss that
+  // scikit-learn negates (neg_*) is shown as itself. The numbers from the API keep scikit-learn's sign.
+  function displayOf(node, metric) {
+    var holder = node.closest("[data-metric-displays]");
+    var all = holder ? JSON.parse(holder.dataset.metricDisplays) : {};
+    var shown = all[metric] || { name: metric, negated: false, label: metric };
+    return { name: shown.name, label: shown.label,
+             level: function (value) { return value === null || value === undefined || !shown.negated ? value : -value; } };
+  }
+
   function number(value, digits) {
     return value === null || value === undefined ? "–" : value.toFixed(digits === undefined ? 3 : digits);
   }
@@ -48,10 +58,11 @@
   }
 
   function drawChart(target, estimate, colours, plotlyUrl) {
+    var shown = displayOf(target, estimate.metric);
     var labels = estimate.folds.map(function (f) { return "r" + f.repeat + " o" + f.outer_fold; });
     function trace(name, key, colour, dash) {
       return { type: "scatter", mode: "lines+markers", name: name, x: labels,
-               y: estimate.folds.map(function (f) { return f[key]; }),
+               y: estimate.folds.map(function (f) { return shown.level(f[key]); }),
                line: { color: colour, dash: dash || "solid" }, marker: { color: colour } };
     }
     // The ensemble in ink, the selection procedure in grey; the best family keeps its family colour.
@@ -61,7 +72,7 @@
     var layout = Object.assign({}, style.layout, {
       height: 260, margin: { l: 55, r: 15, t: 10, b: 40 }, showlegend: true, legend: { orientation: "h", y: -0.25 },
       xaxis: Object.assign({ title: { text: "outer fold" } }, style.axis),
-      yaxis: Object.assign({ title: { text: estimate.metric } }, style.axis) });
+      yaxis: Object.assign({ title: { text: shown.label } }, style.axis) });
     target.dataset.drawn = "false";
     withPlotly(plotlyUrl, function (Plotly) {
       Plotly.react(target, data, layout, style.config).then(function () {
@@ -74,7 +85,7 @@
     var c = estimate.comparison;
     if (!c) { return estimate.comparison_note || ""; }
     return "Against the selection procedure, paired over " + c.n + " outer folds: mean difference " +
-      number(c.mean_diff, 4) + ", corrected resampled t-test p = " + number(c.corrected_p) +
+      number(c.mean_diff, 4) + " (positive favours the ensemble), corrected resampled t-test p = " + number(c.corrected_p) +
       ", Wilcoxon p = " + number(c.wilcoxon_p) + "; " + c.verdict + ".";
   }
 
@@ -214,17 +225,17 @@
       return;
     }
     this.root.dataset.estimate = String(estimate.mean);
-    var big = this.part("estimate");
-    big.textContent = number(estimate.mean);
+    var big = this.part("estimate"), shown = displayOf(this.root, estimate.metric);
+    big.textContent = number(shown.level(estimate.mean));
     if (estimate.sd !== null) { big.appendChild(element("small", " ± " + number(estimate.sd))); }
-    big.appendChild(element("small", " " + estimate.metric + " over " + estimate.n + " outer folds"));
+    big.appendChild(element("small", " " + shown.label + " over " + estimate.n + " outer folds"));
     this.part("caution").textContent = estimate.caution;
     this.part("voting").textContent = "Combined by " + estimate.voting_text + "." +
       (estimate.metric_note ? " " + estimate.metric_note + "." : "");
     var best = estimate.best_family;
     this.part("rule").textContent = "Members: " + estimate.rule + ". Selection procedure " +
-      number(estimate.selection.mean) + " ± " + number(estimate.selection.sd) + "; best single family (" +
-      best.family + ") " + number(best.mean) + " ± " + number(best.sd) + ".";
+      number(shown.level(estimate.selection.mean)) + " ± " + number(estimate.selection.sd) + "; best single family (" +
+      best.family + ") " + number(shown.level(best.mean)) + " ± " + number(best.sd) + ".";
     this.part("comparison").textContent = comparisonText(estimate);
     estimate.member_details.forEach(function (member) {
       var item = element("li");
@@ -242,7 +253,8 @@
     estimate.folds.forEach(function (fold) {
       var row = element("tr");
       [fold.repeat, fold.outer_fold].forEach(function (value) { row.appendChild(element("td", String(value))); });
-      [fold.ensemble, fold.selection, fold.best_family, fold.diff].forEach(function (value, i) {
+      // Levels as the metric reads; the difference keeps its sign (positive favours the ensemble).
+      [shown.level(fold.ensemble), shown.level(fold.selection), shown.level(fold.best_family), fold.diff].forEach(function (value, i) {
         row.appendChild(element("td", number(value, i === 3 ? 4 : 3), "num"));
       });
       rows.appendChild(row);

@@ -73,8 +73,8 @@ def free_port() -> int:
 class LiveServer:
     """`foldwise serve` in its own process on loopback, as a person would start it."""
 
-    def __init__(self, db_path: Path, log_path: Path, *extra: str):
-        self.port = free_port()
+    def __init__(self, db_path: Path, log_path: Path, *extra: str, env: dict | None = None, port: int | None = None):
+        self.port = port or free_port()
         self.url = f"http://127.0.0.1:{self.port}"
         self.db_path, self.config_dir = db_path, db_path.parent / "config"
         self._log = open(log_path, "w")
@@ -82,7 +82,7 @@ class LiveServer:
             [sys.executable, "-m", "foldwise.cli", "serve", "--create", "--db", str(db_path), "--port", str(self.port),
              *extra],
             stdout=self._log, stderr=subprocess.STDOUT,
-            env={**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_CONFIG": str(self.config_dir)})
+            env={**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_CONFIG": str(self.config_dir), **(env or {})})
         self._wait()
         self.write_key = KeyFile(self.config_dir / "keys.json").ensure_write_key().secret
 

@@ -25,19 +25,24 @@ from foldwise.payload import (
     canonical_params,
 )
 from foldwise.runner.fitting import FitResult
+from foldwise.runner.keeping import REFITS_INSTEAD, estimator_class
 from foldwise.runner.metadata import without_requests
 from foldwise.runner.space import Space
 from foldwise.runner.splits import Layout
+from foldwise.trust import refused_types
 
 _RECORDED_PACKAGES = ("foldwise", "scikit-learn", "numpy", "scipy", "pandas", "joblib")
 
 
 def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, classes, classifier,
                   results: dict[tuple, FitResult], choices, refit_all, n_features, grouped,
-                  selected_by: str = "inner_mean", scorers: dict[str, str] | None = None) -> AssessmentPayload:
+                  selected_by: str = "inner_mean", scorers: dict[str, str] | None = None,
+                  trusted: list[str] = ()) -> AssessmentPayload:
     splits, targets = layout.splits, np.asarray(y)
     inner, outer = _columns(metrics, True), _columns(metrics, False)
     predictions, failures, models = [], [], []
+    allowed = {estimator_class(estimator) for estimator in space.estimators.values()}
+    left_out: dict[str, list] = {}  # family -> the models the loader would refuse, and why
     for key in sorted(results):
         result = results[key]
         split = splits[key[1]]
@@ -50,7 +55,10 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
                 kind, values = result.prediction
                 predictions.append(Prediction.from_array(values, kind=kind, **where))
             text = None if result.model is None else _skops_text(result.model, "a fitted fold winner")
-            if text is not None:
+            types = [] if text is None else refused_types(base64.b64decode(text), allowed=allowed, libraries=trusted)
+            if types:  # a fitted model may hold types its unfitted estimator did not
+                left_out.setdefault(space.candidates[key[-1]].family, []).append(types)
+            elif text is not None:
                 models.append(FittedModel(skops=text, **where))
         inner_fold = key[2] if key[0] == "inner" else None
         if result.error:
@@ -66,6 +74,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
         if overall is not None:  # else every configuration failed there: a failed fold, its fits in failures
             overall_winners.append(FoldChoice(config=overall, **fold))
 
+    _warn_left_out(left_out)
     return AssessmentPayload(
         name=name, dataset=dataset,
         design=Design(
@@ -73,9 +82,9 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
             n_features=n_features, n_repeats=layout.n_repeats, n_outer_folds=layout.n_outer_folds,
             n_inner_folds=layout.n_inner_folds, outer_splitter=layout.outer_splitter,
             inner_splitter=layout.inner_splitter, grouped=grouped, refit_all=refit_all, metrics=metrics,
-            scorers=scorers or {}, classes=classes, selected_by=selected_by),
+            scorers=scorers or {}, classes=classes, selected_by=selected_by, trusted=list(trusted)),
         families=[Family(name=family, estimator=repr(estimator),
-                         estimator_class=f"{type(estimator).__module__}.{type(estimator).__qualname__}",
+                         estimator_class=estimator_class(estimator),
                          estimator_skops=_skops_text(estimator, f"family {family!r}'s estimator"))
                   for family, estimator in space.estimators.items()],
         configurations=[Configuration(id=c.id, family=c.family, params=canonical_params(c.params))
@@ -113,6 +122,15 @@ def _skops_text(estimator, what: str) -> str | None:
         return None
 
 
+def _warn_left_out(left_out: dict[str, list]) -> None:
+    if not left_out:
+        return
+    said = "; ".join(f"{len(found)} of family {family!r} (holding {sorted({t for types in found for t in types})})"
+                     for family, found in left_out.items())
+    warnings.warn(f"keep_models: {sum(map(len, left_out.values()))} fitted fold winners hold types the store's "
+                  f"loader does not trust: {said}; " + REFITS_INSTEAD, RuntimeWarning, stacklevel=4)
+
+
 def _columns(metrics, inner: bool) -> dict[str, list]:
     names = ["repeat", "outer_fold", "config", "metric", "score", "fit_time", "score_time"]
     return {name: [] for name in names + (["inner_fold"] if inner else [])}
@@ -136,4 +154,6 @@ def _seeds(space: Space, layout: Layout) -> dict:
                  if key == "random_state" or key.endswith("__random_state")}
         if found:
             seeds[family] = found
+    if space.drawn:  # random-search families: how their candidates were drawn (the candidates are the configurations)
+        seeds["drawn candidates"] = space.drawn
     return seeds

@@ -165,6 +165,23 @@ class Journal:
             self._connection.executemany(
                 "INSERT OR REPLACE INTO journal_fits VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
 
+    def run_uuid(self, fresh: str) -> str:
+        """The uuid of the run this journal belongs to: the one kept here, else ``fresh``, kept from now on, so
+        that a resumed run goes on reporting (``live=``) and pushes its assessment under its first uuid."""
+        kept = self._connection.execute("SELECT value FROM journal_meta WHERE name = 'run uuid'").fetchone()
+        if kept is not None:
+            return kept[0]
+        with self._connection:
+            self._connection.execute("BEGIN")
+            self._connection.execute("INSERT INTO journal_meta VALUES ('run uuid', ?)", (fresh,))
+        return fresh
+
+    def forget_run_uuid(self) -> None:
+        """The run finished: a later run on this journal is another run, with a uuid of its own."""
+        with self._connection:
+            self._connection.execute("BEGIN")
+            self._connection.execute("DELETE FROM journal_meta WHERE name = 'run uuid'")
+
     def count(self) -> int:
         return self._connection.execute("SELECT count(*) FROM journal_fits").fetchone()[0]
 

@@ -6,12 +6,12 @@ import sys
 import warnings
 from collections import Counter
 from collections.abc import Iterable
+from uuid import UUID, uuid4
 
 import joblib
 import numpy as np
 from sklearn.base import is_classifier
-from sklearn.model_selection import GridSearchCV, RandomizedSearchCV, check_cv
-from sklearn.model_selection._search import BaseSearchCV
+from sklearn.model_selection import check_cv
 from sklearn.utils.metadata_routing import _routing_enabled
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 from sklearn.utils.validation import _num_samples
@@ -24,36 +24,47 @@ from foldwise.runner.final import final_selection, final_splits, final_tasks
 from foldwise.runner.fitting import FitResult, FitTask, run_fit
 from foldwise.runner.growth import growth_chains, run_chain
 from foldwise.runner.journal import MODES, Journal, fingerprint
+from foldwise.runner.keeping import check_trusted, keepable_families
+from foldwise.runner.live import DEFAULT_INTERVAL, LiveReporter
 from foldwise.runner.metadata import Routed, route
 from foldwise.runner.prefix import prefix_groups, run_shared, shared_steps
 from foldwise.runner.progress import progress_bar
-from foldwise.runner.scoring import Scoring, resolve_scoring, selecting_first
-from foldwise.runner.space import Space, space_from
+from foldwise.runner.scoring import Scoring, resolve_scoring
+from foldwise.runner.searches import search_in, search_settings
+from foldwise.runner.space import EXPANDABLE, Space, space_from
 from foldwise.runner.splits import Layout, lay_out
 from foldwise.runner.whole_search import nested_whole_search
 
 
-def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, params=None, error_score=np.nan,
+def nested_cv(space, X, y, *, outer=5, inner=None, scoring=None, groups=None, params=None, error_score=np.nan,
               n_jobs=None, progress=True, name=None, dataset=None, refit_all=True, keep_predictions=True,
-              keep_models=False, grow=True, final=False, share_prefixes=True, checkpoint=None,
-              checkpoint_mode="resume") -> Assessment:
+              keep_models=False, trusted=None, grow=True, final=False, share_prefixes=True, checkpoint=None,
+              checkpoint_mode="resume", live=None, live_token=None, live_interval=DEFAULT_INTERVAL) -> Assessment:
     """Run a nested cross-validation and keep every score.
 
     Parameters
     ----------
     space : dict or search object
-        ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them, or a
-        ``GridSearchCV`` / ``RandomizedSearchCV`` (expanded into its candidates and run in the one
-        pool), or any other ``BaseSearchCV`` or one with a callable ``refit`` (fitted whole on each
-        outer training set).
-    outer, inner : int or splitter
-        Resolved with ``check_cv``: stratified for classifiers. A search object's own ``cv`` is its
-        inner splitter.
+        ``{family: (estimator, param_grid)}`` with grids as ``ParameterGrid`` takes them;
+        ``{family: (estimator, distributions, n_iter, random_state)}`` for random search (``n_iter``
+        candidates drawn once by ``ParameterSampler`` from lists and ``scipy.stats`` distributions, the
+        same in every outer fold, recorded as the configurations; ``random_state`` may be left out, and
+        then they are drawn afresh on each call); see ``foldwise.runner.space``. Or a search object, bare
+        or as ``{family: search}``: a ``GridSearchCV`` / ``RandomizedSearchCV`` is expanded into its
+        candidates and run in the one pool, any other ``BaseSearchCV`` or one with a callable ``refit``
+        is fitted whole on each outer training set. A search object's ``cv``, ``scoring`` and ``refit``
+        are used as they are (``foldwise.runner.searches``).
+    outer : int or splitter
+        Resolved with ``check_cv``: stratified for classifiers.
+    inner : int, splitter or None
+        As ``outer``; None is 5 folds, or a search object's own ``cv``. Beside a search object an
+        ``inner`` other than its ``cv`` is refused (the search's setting wins; change it there).
     scoring : str, list of str, dict, scorer object or callable, optional
         As ``GridSearchCV`` takes it: a scorer name, a list of names, a dict ``{name: scorer}``, a
         scorer object (``make_scorer(fbeta_score, beta=2)``) or a callable ``(estimator, X, y)``, named
         "score". The first metric (or a search object's ``refit`` metric) selects. Defaults to
-        accuracy (classifiers) or r2.
+        accuracy (classifiers) or r2, or a search object's own scoring; beside a search object, a
+        ``scoring`` whose first metric is not the one the search selects by is refused.
     groups : array-like, optional
         Group labels, passed to the outer splitter and, restricted to the outer training rows, to
         the inner one (an int ``inner`` resolves to an ungrouped splitter: pass e.g. ``GroupKFold``
@@ -77,7 +88,14 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
     keep_models : bool
         Keep every family winner as fitted on its outer training set (skops files in the payload), so
         an ensemble of fold winners can be downloaded ready to predict. The outer refits then wait
-        for the inner folds' choices, so that only the winners' models are held.
+        for the inner folds' choices, so that only the winners' models are held. Only models the store's
+        loader reads back are kept: each family's estimator is checked at the start and each fitted
+        model at the end (``foldwise.runner.keeping``); a warning names those left out, whose ensembles
+        ``build_ensemble`` refits instead.
+    trusted : list of str, optional
+        Libraries (top-level module names, e.g. ``["xgboost"]``) whose own classes the loader may read
+        back from this assessment's kept models, recorded as ``design.trusted``. Never trusted by default:
+        loading a class can run its code.
     final : bool
         Also run the final selection (``foldwise.runner.final``): the inner splitter over every row, every
         configuration scored on each of its folds, the winner chosen by the outer folds' rule and refit on
@@ -98,30 +116,44 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
         journal of a different run (data, grid, scorer, splits, versions or options) is refused.
     checkpoint_mode : {"resume", "overwrite"}
         Resume from the journal at ``checkpoint`` (default), or start it afresh.
+    live : str, optional
+        The URL of a foldwise server to watch the run on (see ``foldwise.runner.live``): it is told that the
+        run started, then every ``live_interval`` seconds how many fits are done of how many, the time per
+        fit and the projected end, and each outer fold's winners and outer scores as the fold completes. At
+        the end the assessment is pushed there (``foldwise.push``; spooled if the server cannot be reached)
+        and replaces the live view. A server that cannot be reached never stops the run; the next report
+        catches it up. With ``checkpoint``, a resumed run goes on under its first uuid.
+    live_token : str, optional
+        The write key for ``live``, as ``push`` takes it (else ``$FOLDWISE_KEY``, else this machine's key file).
+    live_interval : float
+        Seconds between two reports to ``live`` (default 5).
     """
     _check_lengths(X, y, groups)
+    trusted = check_trusted(trusted)
     if checkpoint_mode not in MODES:
         raise ValueError(f"checkpoint_mode must be one of {MODES}, got {checkpoint_mode!r}")
-    expandable = isinstance(space, GridSearchCV | RandomizedSearchCV) and not callable(space.refit)
-    if isinstance(space, BaseSearchCV) and not expandable:
+    search, family = search_in(space)
+    if search is not None:
+        inner, scoring = search_settings(search, inner, scoring)
+        space = {family: search}
+    if search is not None and (not isinstance(search, EXPANDABLE) or callable(search.refit)):
+        kind = type(search).__name__
         if keep_models:
             raise ValueError(f"keep_models=True needs a space foldwise expands into configurations; a "
-                             f"{type(space).__name__} is fitted whole on each outer fold, so pass a dict "
+                             f"{kind} is fitted whole on each outer fold, so pass a dict "
                              f"{{family: (estimator, grid)}} or a GridSearchCV / RandomizedSearchCV")
-        if checkpoint is not None:
-            raise ValueError(f"checkpoint needs a space foldwise expands into configurations; a "
-                             f"{type(space).__name__} is fitted whole on each outer fold")
+        if checkpoint is not None or live is not None:
+            raise ValueError(f"{'checkpoint' if checkpoint is not None else 'live'} needs a space foldwise expands "
+                             f"into configurations; a {kind} is fitted whole on each outer fold")
         if params or not (isinstance(error_score, float) and np.isnan(error_score)):
-            raise ValueError(f"params= and error_score= are not passed into a {type(space).__name__} fitted whole; "
+            raise ValueError(f"params= and error_score= are not passed into a {kind} fitted whole; "
                              f"set error_score on the search itself, or pass a dict space or a GridSearchCV")
-        return nested_whole_search(space, X, y, outer=outer, scoring=scoring, groups=groups, n_jobs=n_jobs,
-                                   progress=progress, name=name, dataset=dataset,
+        return nested_whole_search(search, X, y, family=family, outer=outer, scoring=scoring, groups=groups,
+                                   n_jobs=n_jobs, progress=progress, name=name, dataset=dataset,
                                    keep_predictions=keep_predictions)
-    if isinstance(space, BaseSearchCV):
-        inner = space.cv if space.cv is not None else inner
-        scoring = scoring if scoring is not None else _refit_first(space.scoring, space.refit)
     resolved = space_from(space)
     classifier = _task_of(resolved)
+    keepable = keepable_families(resolved.estimators, trusted) if keep_models else set()
     scorers = resolve_scoring(scoring, next(iter(resolved.estimators.values())), classifier=classifier,
                               error_score=error_score)
     metrics = scorers.metrics
@@ -137,47 +169,38 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
         X=X, y=y, groups=groups, space=resolved, layout=layout, classes=classes,
         metrics=[f"{name} = {scorers.custom[name]}" if name in scorers.custom else name for name in metrics],
         options={"refit_all": refit_all, "keep_predictions": keep_predictions, "keep_models": keep_models,
+                 "trusted": trusted,
                  "grow": grow, "share_prefixes": share_prefixes, "final": final,
                  "error_score": str(error_score), "routing": _routing_enabled(),
                  "params": None if not params else joblib.hash(params, hash_name="sha1")}), mode=checkpoint_mode)
     shared = shared_steps(resolved) if share_prefixes else {}
     shared = {c: key for c, key in shared.items() if routed.families[resolved.candidates[c].family].is_empty}
-    runner = _Runner(resolved, chains, shared, *data_for_workers(X, y), scorers, routed, classes, journal)
+    # A resumed run goes on reporting under its first uuid; a run that finished leaves the next one a new uuid.
+    run_uuid = journal.run_uuid(str(uuid4())) if journal is not None and live is not None else str(uuid4())
+    reporter = None if live is None else LiveReporter(
+        live, run_uuid, token=live_token, interval=live_interval, name=name or "nested cross-validation",
+        dataset=dataset, task="classification" if classifier else "regression", metrics=metrics, space=resolved,
+        layout=layout, refit_all=refit_all)
+    runner = _Runner(resolved, chains, shared, *data_for_workers(X, y), scorers, routed, classes, journal, reporter)
 
     n_configs = len(resolved.candidates)
     n_fits = len(layout.splits) * n_configs * (layout.n_inner_folds + (1 if refit_all else 0))
-    with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
-            Parallel(n_jobs=n_jobs, return_as="generator_unordered",
-                     # With a journal, one job per dispatch: a job's fits are journaled as soon as it ends,
-                     # not when a batch of quick jobs does, so a killed run loses only what was running.
-                     batch_size=1 if journal is not None else "auto") as pool:
-        first = [*_inner_tasks(layout, n_configs)]
-        outer_at_once = refit_all and not keep_models
-        if outer_at_once:
-            first += _outer_tasks(layout, range(n_configs), keep_predictions)
-        results = runner.run(pool, first, bar)
-        choices = _select(layout, resolved, results, metrics[0])
-        if not outer_at_once:
-            wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
-            pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
-                else sorted(wanted)
-            bar.total = len(first) + len(pairs)
-            bar.refresh()
-            results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions,
-                                                             wanted if keep_models else set()), bar))
-
-        if final:
-            splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
-            tasks = final_tasks(splits, n_configs)
-            bar.total += len(tasks)
-            bar.refresh()
-            ran = runner.run(pool, tasks, bar)
-            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y,
-                                     fit_params={family: routed.families[family].fit for family in resolved.estimators},
-                                     raises=scorers.raises)
-            results.update(ran)
-
+    if reporter is not None:
+        reporter.start(n_fits)
+    try:
+        results, choices, chosen = _run_all(runner, layout, resolved, metrics, n_fits, n_jobs=n_jobs,
+                                            progress=progress, name=name, journal=journal, refit_all=refit_all,
+                                            keep_models=keep_models, keepable=keepable,
+                                            keep_predictions=keep_predictions,
+                                            final=final, X=X, y=y, inner=inner, classifier=classifier,
+                                            routed=routed, scorers=scorers)
+    except BaseException as error:
+        if reporter is not None:
+            reporter.end("stopped", reason="interrupted (Ctrl-C)" if isinstance(error, KeyboardInterrupt)
+                         else f"{type(error).__name__}: {error}")
+        raise
     if journal is not None:
+        journal.forget_run_uuid()
         journal.close()
     _warn_failures(list(results.values()), _failed_folds(layout, choices))
     for key in [key for key in results if key[0] == "final"]:
@@ -186,8 +209,66 @@ def nested_cv(space, X, y, *, outer=5, inner=5, scoring=None, groups=None, param
         name=name or "nested cross-validation", dataset=dataset, space=resolved, layout=layout, y=y,
         metrics=metrics, classes=classes, classifier=classifier, results=results, choices=choices,
         refit_all=refit_all, n_features=_n_features(X),
-        grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom)
-    return Assessment(payload.model_copy(update={"final": chosen}) if final else payload)
+        grouped=routed.outer_groups is not None or routed.inner_groups is not None, scorers=scorers.custom,
+        trusted=trusted)
+    payload = payload.model_copy(update={"uuid": UUID(run_uuid), **({"final": chosen} if final else {})})
+    if reporter is not None:
+        reporter.end("done")
+        _push_finished(payload, live, live_token)
+    return Assessment(payload)
+
+
+def _run_all(runner, layout, resolved, metrics, n_fits, *, n_jobs, progress, name, journal, refit_all, keep_models,
+             keepable, keep_predictions, final, X, y, inner, classifier, routed, scorers):
+    """Every fit of the run in the one pool: the inner folds (with the outer refits when they need not wait),
+    the fold winners, the outer refits that waited for them, and the final selection."""
+    n_configs, chosen = len(resolved.candidates), None
+    with progress_bar(total=n_fits, unit="fit", desc=name or "nested cv", disable=not progress) as bar, \
+            Parallel(n_jobs=n_jobs, return_as="generator_unordered",
+                     # With a journal, one job per dispatch: a job's fits are journaled as soon as it ends,
+                     # not when a batch of quick jobs does, so a killed run loses only what was running.
+                     batch_size=1 if journal is not None else "auto") as pool:
+        first = [*_inner_tasks(layout, n_configs)]
+        outer_at_once = refit_all and not keep_models
+        if outer_at_once:  # fold by fold, so that outer folds complete one after another, not all at the end
+            outer = _outer_tasks(layout, range(n_configs), keep_predictions)
+            first = sorted(first + outer, key=lambda task: task.key[1])
+        results = runner.run(pool, first, bar)
+        choices = _select(layout, resolved, results, metrics[0])
+        if not outer_at_once:
+            wanted = {(s, c) for s, (winners, _) in enumerate(choices) for c in winners if c is not None}
+            kept = {(s, c) for s, c in wanted if resolved.candidates[c].family in keepable}
+            pairs = [(s, c) for s in range(len(layout.splits)) for c in range(n_configs)] if refit_all \
+                else sorted(wanted)
+            bar.total = len(first) + len(pairs)
+            bar.refresh()
+            runner.total(bar.total)
+            results.update(runner.run(pool, _outer_tasks_for(layout, pairs, keep_predictions, kept), bar))
+
+        if final:
+            splits, inner_splitter = final_splits(X, y, routed.inner_groups, inner=inner, classifier=classifier)
+            tasks = final_tasks(splits, n_configs)
+            bar.total += len(tasks)
+            bar.refresh()
+            runner.total(bar.total)
+            ran = runner.run(pool, tasks, bar)
+            chosen = final_selection(resolved, splits, inner_splitter, ran, metrics, X, y,
+                                     fit_params={family: routed.families[family].fit for family in resolved.estimators},
+                                     raises=scorers.raises)
+            results.update(ran)
+    return results, choices, chosen
+
+
+def _push_finished(payload, url: str, token: str | None) -> None:
+    """Push the finished assessment to the live server, where it replaces the live view; a refusal is warned
+    about, never raised: the assessment is returned all the same, to push or save again."""
+    from foldwise.client import PushRejected, push
+
+    try:
+        push(payload, url, token=token)
+    except PushRejected as error:
+        warnings.warn(f"{error}; the assessment is returned all the same: push or save it again", RuntimeWarning,
+                      stacklevel=3)
 
 
 class _Runner:
@@ -195,7 +276,7 @@ class _Runner:
     a pipeline's shared leading steps), and journals each job's results as they arrive."""
 
     def __init__(self, space: Space, chains: list[list[int]], shared: dict[int, tuple], X, y, scoring: Scoring,
-                 routed: Routed, classes, journal: Journal | None = None):
+                 routed: Routed, classes, journal: Journal | None = None, reporter: LiveReporter | None = None):
         self.space, self.X, self.y = space, X, y
         self.scoring, self.routed, self.classes = scoring, routed, classes
         self.chain_of = {c: n for n, chain in enumerate(chains) for c in chain}
@@ -204,7 +285,11 @@ class _Runner:
         self.group_of = {c: ("chain", n) for c, n in self.chain_of.items()}
         self.group_of.update((c, ("prefix", n)) for n, group in enumerate(prefix_groups(space, shared, self.chain_of))
                              for c in group)
-        self.journal = journal
+        self.journal, self.reporter = journal, reporter
+
+    def total(self, n_fits: int) -> None:
+        if self.reporter is not None:
+            self.reporter.fits_total = n_fits
 
     def run(self, pool: Parallel, tasks: list[FitTask], bar) -> dict[tuple, FitResult]:
         results = {}
@@ -212,6 +297,8 @@ class _Runner:
             results = {task.key: found for task in tasks if (found := self.journal.result_for(task)) is not None}
             tasks = [task for task in tasks if task.key not in results]
             bar.update(len(results))
+            if self.reporter is not None and results:
+                self.reporter.arrived(list(results.values()), resumed=True)
         try:
             for done in pool(self._job(job) for job in self._jobs(tasks)):
                 done = done if isinstance(done, list) else [done]  # a job's results, or one fit's
@@ -219,6 +306,8 @@ class _Runner:
                     self.journal.record(done)
                 results.update((result.key, result) for result in done)
                 bar.update(len(done))
+                if self.reporter is not None:
+                    self.reporter.arrived(done)
         except KeyboardInterrupt:  # the pool stops its workers as the exception leaves it
             if self.journal is not None:
                 print(f"\nInterrupted: {self.journal.count()} finished fits are kept in the journal "
@@ -286,8 +375,6 @@ def resolve_metrics(scoring, classifier: bool) -> list[str]:
     """The metric names ``scoring`` gives (``foldwise.runner.scoring.resolve_scoring``)."""
     return resolve_scoring(scoring, None, classifier=classifier).metrics
 
-
-_refit_first = selecting_first
 
 
 def _task_of(space: Space) -> bool:

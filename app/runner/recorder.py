@@ -31,6 +31,7 @@ from foldwise.payload import (
     config_id,
 )
 from foldwise.runner.building import package_versions
+from foldwise.runner.canonical import cut_short, digest, label_with_digest
 
 
 class Recorder:
@@ -99,10 +100,13 @@ class Recorder:
             total_fit_time=float(sum(entry[1] or 0.0 for entry in [*self._inner.values(), *self._outer.values()]))))
 
     def _config(self, family: str, params: dict[str, Any]) -> int:
-        ident = config_id(family, params)
-        if ident not in self._configs:
-            self._configs[ident] = Configuration(id=ident, family=family, params=canonical_params(params))
-        return list(self._configs).index(ident)
+        key = digest(family, params)  # one configuration per description (foldwise.runner.canonical)
+        if key not in self._configs:
+            label = config_id(family, params)
+            taken = any(config.id == label for config in self._configs.values())
+            ident = label_with_digest(label, key) if taken or cut_short(params) else label
+            self._configs[key] = Configuration(id=ident, family=family, params=canonical_params(params))
+        return list(self._configs).index(key)
 
     def _scores(self, scores: dict[str, float | None]) -> list[float | None]:
         unknown = sorted(set(scores) - set(self.metrics))

@@ -14,36 +14,32 @@ import warnings
 
 import numpy as np
 from sklearn.base import clone, is_classifier
-from sklearn.metrics import check_scoring
 from sklearn.utils import _safe_indexing
 from sklearn.utils.parallel import Parallel, delayed  # carries sklearn's config into the workers
 
 from foldwise.assessment import Assessment
-from foldwise.payload import config_id
 from foldwise.runner.building import build_payload
+from foldwise.runner.canonical import digest, identify
 from foldwise.runner.fitting import FitResult, outer_predictions
 from foldwise.runner.progress import progress_bar
+from foldwise.runner.scoring import resolve_scoring
 from foldwise.runner.space import Candidate, Space
 from foldwise.runner.splits import lay_out
 
 
-def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progress, name, dataset,
+def nested_whole_search(search, X, y, *, family, outer, scoring, groups, n_jobs, progress, name, dataset,
                         keep_predictions) -> Assessment:
-    from foldwise.runner.nested import _refit_first, resolve_metrics
+    """``scoring`` is the search's own or one that selects alike (``foldwise.runner.searches``)."""
+    from foldwise.runner.nested import resolve_metrics
 
     classifier = is_classifier(search.estimator)
-    own = search.scoring
-    metrics = resolve_metrics(scoring if scoring is not None else _refit_first(own, search.refit), classifier)
-    single = own is None or isinstance(own, str)
+    scorer = resolve_scoring(scoring, search.estimator, classifier=classifier)
+    metrics = scorer.metrics
     # A one-metric search's cv_results_ call its scores "score"; name them for what they measure.
-    searched = (own or resolve_metrics(None, classifier)[0]) if single else None
-    selects = searched if single else search.refit if isinstance(search.refit, str) else None
-    if selects is not None and selects != metrics[0]:
-        raise ValueError(f"the search selects by {selects!r} but scoring names {metrics[0]!r} first; give the "
-                         f"search scoring={metrics[0]!r}, or put {selects!r} first in scoring")
+    single = not isinstance(search.scoring, list | tuple | dict)
+    searched = resolve_metrics(search.scoring, classifier)[0] if single else None
     layout = lay_out(X, y, groups, outer=outer, inner=search.cv, classifier=classifier)
     classes = np.unique(np.asarray(y)).tolist() if classifier else None
-    scorer = check_scoring(search.estimator, scoring=metrics)
     with progress_bar(total=len(layout.splits), unit="search", desc=name or "nested cv", disable=not progress) as bar:
         folds = []
         for fold in Parallel(n_jobs=n_jobs, return_as="generator")(
@@ -52,25 +48,22 @@ def nested_whole_search(search, X, y, *, outer, scoring, groups, n_jobs, progres
             folds.append(fold)
             bar.update(1)
 
-    family = type(search.estimator).__name__
-    candidates: dict[str, Candidate] = {}
-    for fold in folds:
-        for params in fold["params"]:
-            ident = config_id(family, params)
-            candidates.setdefault(ident, Candidate(family, dict(params), ident))
-    position = {ident: i for i, ident in enumerate(candidates)}
+    # One configuration per description, however many folds (or halving rounds) evaluated it.
+    identified = identify(family, [params for fold in folds for params in fold["params"]], warn=False)
+    candidates = [Candidate(family, params, ident) for params, ident, _ in identified]
+    position = {key: i for i, (_, _, key) in enumerate(identified)}
     results, choices = {}, []
     for s, fold in enumerate(folds):
-        ids = [config_id(family, params) for params in fold["params"]]
+        ids = [digest(family, params) for params in fold["params"]]
         for c, ident in enumerate(ids):  # a config evaluated again later (more resources) keeps the last
             for i in range(layout.n_inner_folds):
                 scores = {metric: fold["inner"][metric][c][i] for metric in metrics}
                 results[("inner", s, i, position[ident])] = FitResult(
                     ("inner", s, i, position[ident]), scores, fold["fit_time"][c], fold["score_time"][c], 0.0)
         winner = position[ids[fold["best"]]]
-        results[("outer", s, winner)] = FitResult(("outer", s, winner), *fold["outer"])
+        results[("outer", s, winner)] = FitResult(("outer", s, winner), *fold["outer"], problems=fold["problems"])
         choices.append(([winner], winner))
-    space = Space({family: search.estimator}, list(candidates.values()))
+    space = Space({family: search.estimator}, candidates)
     return Assessment(build_payload(
         name=name or "nested cross-validation", dataset=dataset, space=space, layout=layout, y=y,
         metrics=metrics, classes=classes, classifier=classifier, results=_complete(results, layout, space,
@@ -111,8 +104,9 @@ def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, kee
     X_test, y_test = _safe_indexing(X, test), _safe_indexing(y, test)
     model, error = fitted.best_estimator_, None
     started = time.perf_counter()
+    problems = []
     try:
-        scores = {metric: float(value) for metric, value in scorer(model, X_test, y_test).items()}
+        scores, problems = scorer.score(model, X_test, y_test, {})  # a failing metric alone is NaN
         prediction = outer_predictions(model, X_test, classes) if keep_predictions else None
     except Exception as exc:  # recorded like any failed fit
         scores, prediction = dict.fromkeys(metrics, np.nan), None
@@ -122,4 +116,4 @@ def _fit_search(search, X, y, groups, train, test, scorer, metrics, classes, kee
             "fit_time": np.asarray(cv["mean_fit_time"], dtype=float).tolist(),
             "score_time": np.asarray(cv["mean_score_time"], dtype=float).tolist(),
             "outer": (scores, float(fitted.refit_time_), score_time, time.process_time() - started_cpu,
-                      prediction, error)}
+                      prediction, error), "problems": tuple(problems)}

@@ -13,6 +13,7 @@ import numpy as np
 from scipy import stats
 
 from ._arrays import is_constant, mean_fold_size, paired_scores, require_pairs
+from .intervals import corrected_t_interval
 
 # A verdict names an outcome only when its posterior probability reaches this (common practice).
 _DECISIVE = 0.95
@@ -219,7 +220,7 @@ def wilcoxon_signed_rank(a, b) -> WilcoxonResult:
 
 
 def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
-                   names: tuple[str, str] = ("a", "b")) -> dict:
+                   names: tuple[str, str] = ("a", "b"), level: float = 0.95) -> dict:
     r"""Compare two candidates on the same outer folds with all three paired tests and a verdict.
 
     Parameters
@@ -233,12 +234,15 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
         Half-width of the region of practical equivalence, in score units; ``rope >= 0``.
     names : tuple of str, default ("a", "b")
         How the verdict names the two candidates.
+    level : float, default 0.95
+        Level of the corrected interval of the mean difference.
 
     Returns
     -------
     dict
-        ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``corrected_t``, ``corrected_p``, ``df``,
-        ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
+        ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``diff_low`` and ``diff_high`` (the corrected
+        interval of the mean difference at ``level``, given as ``diff_level``), ``corrected_t``,
+        ``corrected_p``, ``df``, ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
         ``wilcoxon_stat``, ``wilcoxon_p``, ``identical`` (every difference zero) and ``verdict`` (a
         plain sentence drawn from the Bayesian probabilities).
 
@@ -247,9 +251,16 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     The corrected t-test (Nadeau and Bengio, 2003) uses :math:`n_\text{test}/n_\text{train}`; the
     Bayesian correlated t-test (Corani and Benavoli, 2015) uses
     :math:`\rho = n_\text{test}/(n_\text{train} + n_\text{test})`, computed from the mean fold sizes.
+    The interval of the mean difference is the acceptance region of the corrected t-test,
+
+    .. math:: \bar d \pm t_{(1+\text{level})/2,\,J-1}\sqrt{(1/J + n_\text{test}/n_\text{train})\,s^2},
+
+    with :math:`J - 1` degrees of freedom (:func:`foldwise.stats.intervals.corrected_t_interval` on the
+    differences), so it excludes 0 exactly when the test's p is below ``1 - level``.
     The verdict claims an outcome only when its posterior probability reaches 0.95, otherwise it says
-    the data do not decide and gives the three probabilities; probabilities are rounded down so the
-    sentence never overstates. Zero-variance cases follow the conventions of the three tests.
+    the data do not decide and gives the three probabilities, written by :func:`probability_text` as
+    the pages write them (three decimals, rounded down so the sentence never overstates).
+    Zero-variance cases follow the conventions of the three tests.
 
     References
     ----------
@@ -275,9 +286,13 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     bayes = bayesian_correlated_ttest(a, b, rho=mean_test / (mean_train + mean_test), rope=rope)
     wilcoxon = wilcoxon_signed_rank(a, b)
     identical = bool(np.all(d == 0))
+    full = np.full(keep.size, np.nan)
+    full[keep] = d
+    interval = corrected_t_interval(full, n_train=n_train, n_test=n_test, level=level)
     return {
         "n": ttest.n, "n_missing": n_dropped,
         "mean_diff": ttest.mean_diff, "sd_diff": ttest.sd_diff,
+        "diff_low": interval.low, "diff_high": interval.high, "diff_level": interval.level,
         "corrected_t": ttest.t, "corrected_p": ttest.p, "df": ttest.df,
         "bayes_a": bayes.p_a, "bayes_rope": bayes.p_rope, "bayes_b": bayes.p_b,
         "posterior_loc": bayes.loc, "posterior_scale": bayes.scale,
@@ -320,29 +335,34 @@ def _verdict(bayes: BayesResult, *, rope: float, constant: bool, names: tuple[st
                        f"more than the ROPE ({rope:g})")
         return f"{finding}; with zero spread the posterior is degenerate, so no probability is given"
     if bayes.p_rope >= _DECISIVE:
-        return f"practically equivalent with probability {_floor_probability(bayes.p_rope)} {at_rope}"
+        return f"practically equivalent with probability {probability_text(bayes.p_rope)} {at_rope}"
     for p, winner, loser in ((bayes.p_a, a, b), (bayes.p_b, b, a)):
         if p >= _DECISIVE:
             return (f"{winner} better than {loser} by more than the ROPE with probability "
-                    f"{_floor_probability(p)} {at_rope}")
+                    f"{probability_text(p)} {at_rope}")
     return (f"the data do not decide {at_rope}: P({a} better) {_relation(bayes.p_a)}, "
             f"P(practically equivalent) {_relation(bayes.p_rope)}, P({b} better) {_relation(bayes.p_b)}")
 
 
 def _relation(p: float) -> str:
-    shown = _floor_probability(p)
+    shown = probability_text(p)
     return shown if shown[0] in "<>" else f"= {shown}"
 
 
-def _floor_probability(p: float) -> str:
-    # Rounded down, and never shown as 0 or 1 unless it is exactly that, so the sentence never overstates.
+def probability_text(p: float) -> str:
+    """A probability as the verdict and the pages write it: three decimals, rounded down, and never shown as 0
+    or 1 unless it is exactly that, so no sentence or card overstates ("> 0.999", "< 0.001").
+
+    >>> probability_text(0.6179), probability_text(0.99996), probability_text(0.0), probability_text(0.95)
+    ('0.617', '> 0.999', '0', '0.950')
+    """
     if p in (0.0, 1.0):
         return f"{p:.0f}"
-    if p > 0.99:
-        return "> 0.99"
-    if p < 0.01:
-        return "< 0.01"
-    return f"{math.floor(p * 100 + 1e-9) / 100:.2f}"
+    if p > 0.999:
+        return "> 0.999"
+    if p < 0.001:
+        return "< 0.001"
+    return f"{math.floor(p * 1000 + 1e-9) / 1000:.3f}"
 
 
 def _check_rope(rope) -> None:

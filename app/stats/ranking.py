@@ -106,6 +106,37 @@ def rank_families(scores: pd.DataFrame) -> RankingResult:
                          note=note)
 
 
+def ranking_verdict(result: RankingResult) -> str:
+    """The ranking in one sentence: which family ranks best and what Friedman's and Nemenyi's tests say of it.
+
+    Friedman's test comes first (Demšar, 2006, recommends Nemenyi's comparisons only after it rejects);
+    when it cannot run, the sentence says why and names no critical difference. The level is
+    ``alpha = 0.05``; p is written with three significant digits (below 0.001 as "< 0.001").
+
+    >>> frame = pd.DataFrame({"forest": [0.9, 0.8, 0.85], "tree": [0.7, 0.75, 0.7], "knn": [0.8, 0.78, 0.8]})
+    >>> print(ranking_verdict(rank_families(frame)))  # doctest: +NORMALIZE_WHITESPACE
+    forest ranks best (mean rank 1.00 over 3 outer folds); Friedman's test finds the ranks differ
+    (p = 0.0498, α = 0.05) and by Nemenyi's critical difference it is ahead of tree, but not told apart from knn
+    """
+    order = sorted(result.mean_ranks, key=result.mean_ranks.get)
+    best = order[0]
+    lead = f"{best} ranks best (mean rank {result.mean_ranks[best]:.2f} over {result.n_blocks} outer folds)"
+    if math.isnan(result.friedman_p):
+        return f"{lead}; Friedman's test cannot run: {result.note}"
+    p = "< 0.001" if result.friedman_p < 0.001 else f"= {result.friedman_p:.3g}"
+    if result.friedman_p >= _ALPHA:
+        return (f"{lead}, but Friedman's test does not find the families' ranks different (p {p}, α = 0.05): "
+                "these outer folds do not tell the families apart")
+    behind = [family for family in order[1:]
+              if result.mean_ranks[family] - result.mean_ranks[best] >= result.critical_difference]
+    close = [family for family in order[1:] if family not in behind]
+    found = f"{lead}; Friedman's test finds the ranks differ (p {p}, α = 0.05)"
+    if not behind:
+        return f"{found}, yet no family is a critical difference behind it, so Nemenyi's test tells none apart"
+    told = f"{found} and by Nemenyi's critical difference it is ahead of {', '.join(behind)}"
+    return told + (f", but not told apart from {', '.join(close)}" if close else "")
+
+
 def nemenyi_q(k: int) -> float:
     r"""Two-tailed Nemenyi critical value :math:`q_{0.05}` for ``k`` compared families.
 

@@ -29,8 +29,10 @@ from foldwise.store.reader import (
     winners_for,
 )
 from foldwise.store.restore import (
+    StoredFinal,
     StoredPrediction,
     final_model_for,
+    final_selection_for,
     fold_targets_for,
     load_payload,
     outer_folds_for,
@@ -46,6 +48,7 @@ __all__ = [
     "UuidConflict",
     "EnsembleRecord",
     "StoredModel",
+    "StoredFinal",
     "StoredPrediction",
     "checkpoint",
     "db_url_from",
@@ -70,6 +73,7 @@ __all__ = [
     "list_assessments",
     "load_payload",
     "final_model_for",
+    "final_selection_for",
     "make_engine",
     "outer_folds_for",
     "outer_scores_for",

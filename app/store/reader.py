@@ -25,7 +25,7 @@ from foldwise.store.engine import write_transaction
 from foldwise.store.ensembles import EnsembleRecord, StoredModel
 from foldwise.store.lookup import AssessmentNotFound, find_assessment, uuid_text
 from foldwise.store.queries import FAILURE_COLUMNS, AssessmentRecord, assessment_index, record_from
-from foldwise.store.restore import StoredPrediction
+from foldwise.store.restore import StoredFinal, StoredPrediction
 
 WINNER_KINDS = ("family", "overall", "either")
 COST_COLUMNS = ["level", "family", "n_fits", "seconds", "n_timed"]
@@ -286,6 +286,14 @@ class AssessmentReader:
             self._connection, self._row, self.configurations, name=name, note=note, members=members,
             voting=voting, metric=metric, estimate_mean=estimate_mean, estimate_sd=estimate_sd)
         return ensembles.ensemble_in(self._connection, ensemble_id)
+
+    def final_selection(self) -> StoredFinal | None:
+        """The final selection on every row without its model's bytes; None when the run made none."""
+        return restore.final_selection_in(self._connection, self._row.id)
+
+    def final_model(self) -> bytes | None:
+        """The skops file of the final selection's refit on every row; None when the run made or kept none."""
+        return restore.final_model_in(self._connection, self._row.id)
 
     def payload(self) -> AssessmentPayload:
         """The payload exactly as it was stored."""

@@ -127,12 +127,36 @@ def _final(connection: Connection, assessment_id: int) -> FinalSelection | None:
     return None if found is None else FinalSelection(**found.selection, model_skops=_text(found.model))
 
 
+@dataclass(frozen=True)
+class StoredFinal:
+    """The final selection as stored, without its model file (read that with ``final_model_for``)."""
+
+    selection: FinalSelection  # model_skops is None here
+    has_model: bool  # the chosen configuration's refit on every row was kept
+
+
+def final_selection_for(engine: Engine, uuid: str) -> StoredFinal | None:
+    """The final selection on every row, or None when the run made none; the model's bytes stay in the store."""
+    with engine.connect() as connection:
+        return final_selection_in(connection, require_assessment(connection, uuid).id)
+
+
+def final_selection_in(connection: Connection, assessment_id: int) -> StoredFinal | None:
+    f = tables.final_selections
+    found = connection.execute(select(f.c.selection, f.c.model.is_not(None).label("has_model"))
+                               .where(f.c.assessment_id == assessment_id)).first()
+    return None if found is None else StoredFinal(FinalSelection(**found.selection), bool(found.has_model))
+
+
 def final_model_for(engine: Engine, uuid: str) -> bytes | None:
     """The skops file of the final selection's refit model; None when the run made none or kept none."""
-    f = tables.final_selections
     with engine.connect() as connection:
-        row = require_assessment(connection, uuid)
-        return connection.scalar(select(f.c.model).where(f.c.assessment_id == row.id))
+        return final_model_in(connection, require_assessment(connection, uuid).id)
+
+
+def final_model_in(connection: Connection, assessment_id: int) -> bytes | None:
+    f = tables.final_selections
+    return connection.scalar(select(f.c.model).where(f.c.assessment_id == assessment_id))
 
 
 def _families(connection: Connection, assessment_id: int) -> list[Family]:

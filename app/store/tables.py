@@ -211,6 +211,34 @@ ensemble_members = Table(
 )
 
 
+# Runs in progress (``foldwise.live_payload``): the newest report of each, kept apart from the assessments. The
+# finished assessment is stored under the run's uuid; from then on the run counts as finished (store/live.py).
+live_runs = Table(
+    "live_runs", metadata,
+    Column("id", Integer, primary_key=True),
+    Column("uuid", String(36), nullable=False, unique=True, comment="the run's uuid, its assessment's once pushed"),
+    Column("name", String(200), nullable=False),
+    Column("dataset", String(200)),
+    Column("started_at", DateTime(timezone=False), nullable=False, comment="UTC"),
+    Column("sent_at", DateTime(timezone=False), nullable=False, comment="UTC: when the run made the report kept"),
+    Column("received_at", DateTime(timezone=False), nullable=False, index=True,
+           comment="UTC, by the server's clock: when the run last reported"),
+    Column("state", String(10), nullable=False, comment="'running', 'done' or 'stopped', as the run said"),
+    Column("fits_done", Integer, nullable=False),
+    Column("fits_total", Integer, nullable=False),
+    Column("report", JSON, nullable=False, comment="the newest report without its folds"),
+)
+
+live_folds = Table(
+    "live_folds", metadata,
+    Column("live_run_id", Integer, ForeignKey("live_runs.id", ondelete="CASCADE"), nullable=False),
+    Column("repeat", Integer, nullable=False),
+    Column("outer_fold", Integer, nullable=False),
+    Column("fold", JSON, nullable=False, comment="the completed fold as reported: sizes, winners, outer scores"),
+    PrimaryKeyConstraint("live_run_id", "repeat", "outer_fold"),
+)
+
+
 def payload_fields(table: Table) -> list[str]:
     """A child table's columns other than its owner and position: the payload's field names."""
     return [column.name for column in table.columns][2:]

@@ -13,7 +13,10 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from foldwise.web.metric_display import API_ORIENTATION
+
 Number = float | None  # null where the number is undefined (NaN): a failed fit, too few folds
+ORIENTED = "scikit-learn's orientation (greater is better; a neg_* metric is the negated loss)"
 
 
 class _Answer(BaseModel):
@@ -47,9 +50,9 @@ class AssessmentRow(_Answer):
     n_inner_folds: int
     n_configs: int
     families: list[str]
-    selection_metric: str
-    estimate_mean: Number
-    estimate_sd: Number
+    selection_metric: str = Field(description=API_ORIENTATION)
+    estimate_mean: Number = Field(description=f"the nested estimate, in {ORIENTED}")
+    estimate_sd: Number = Field(description="sd of the fold winners' outer scores over the outer folds")
     design: str
     n_ensembles: int
 
@@ -69,11 +72,28 @@ class AssessmentAnswer(_Answer):
     versions: dict[str, str]
     seeds: dict[str, Any]
     total_fit_time: float
-    metric: str
-    nested_estimate: dict[str, Any]
+    metric: str = Field(description=API_ORIENTATION)
+    nested_estimate: dict[str, Any] = Field(description=f"mean, sd, min, max of the fold winners' outer scores, "
+                                                        f"in {ORIENTED}")
     family_summary: list[dict[str, Any]]
     n_failures: int
     failures: list[dict[str, Any]] = Field(description="the first failed fits; n_failures counts them all")
+    headline: dict[str, Any] = Field(description="on `metric`: the nested estimate with its headline interval, the "
+                                                 "fold winners' mean best inner score (what a search without an outer "
+                                                 "loop reports) and the mean optimism between them")
+    shipping: dict[str, Any] = Field(description="on the selection metric: the final choice on all rows beside the "
+                                                 "fold winners (the ensemble alternative: /what-to-ship)")
+
+
+class WhatToShip(_Answer):
+    uuid: str
+    final: dict[str, Any] | None = Field(description="the final choice on all rows and how many outer folds chose "
+                                                     "the same configuration, family and parameter values; null "
+                                                     "when the run made no final selection")
+    final_model: bool = Field(description="the final refit on all rows was kept (GET .../final/model)")
+    final_note: str | None
+    ensemble: dict[str, Any] = Field(description="the overall fold winners as one ensemble: its estimate on the "
+                                                 "same outer folds and its paired comparison with the selection")
 
 
 class _ScoreRow(_Answer):
@@ -82,8 +102,8 @@ class _ScoreRow(_Answer):
     family: str
     config: str
     params: dict[str, Any]
-    metric: str
-    score: Number = Field(description="null for a failed fit")
+    metric: str = Field(description=API_ORIENTATION)
+    score: Number = Field(description=f"in {ORIENTED}; null for a failed fit")
     fit_time: Number
     score_time: Number
 
@@ -105,23 +125,24 @@ class WinnerRow(_Answer):
     family: str
     config: str
     params: dict[str, Any]
-    inner_mean: Number
+    inner_mean: Number = Field(description=f"in {ORIENTED}")
     inner_std: Number
-    outer_score: Number
-    optimism: Number = Field(description="inner mean − outer score")
+    outer_score: Number = Field(description=f"in {ORIENTED}")
+    optimism: Number = Field(description="inner mean − outer score, on scikit-learn's scores: positive when the "
+                                         "inner folds flattered the winner, whatever the metric")
 
 
 class PairedFold(_Answer):
     repeat: int
     outer_fold: int
-    a: Number
-    b: Number
-    diff: Number
+    a: Number = Field(description=f"in {ORIENTED}")
+    b: Number = Field(description=f"in {ORIENTED}")
+    diff: Number = Field(description="a − b on scikit-learn's scores: positive favours a, whatever the metric")
 
 
 class PairedComparison(_Answer):
     uuid: str
-    metric: str
+    metric: str = Field(description=API_ORIENTATION)
     rope: float
     a: str
     a_kind: str
@@ -132,7 +153,11 @@ class PairedComparison(_Answer):
     n_repeats: int
     n: int
     n_missing: int
-    mean_diff: Number
+    mean_diff: Number = Field(description="mean of a − b on scikit-learn's scores: positive favours a")
+    diff_low: Number = Field(description="corrected interval of the mean difference a − b (Nadeau and Bengio's "
+                                         "variance, Student t with n − 1 df): low end")
+    diff_high: Number = Field(description="the same interval's high end")
+    diff_level: float = Field(description="the interval's level")
     corrected_t: Number
     corrected_p: Number
     bayes_a: Number
@@ -147,10 +172,12 @@ class Ranking(_Answer):
     metric: str
     friedman_stat: Number
     friedman_p: Number
-    critical_difference: Number
+    critical_difference: Number = Field(description="Nemenyi's critical difference; null when Friedman's test "
+                                                    "cannot run (two families, or every block tied)")
     n_blocks: int
     n_missing: int
     note: str | None
+    verdict: str = Field(description="the ranking in one sentence")
     mean_ranks: dict[str, Number]
     families: list[dict[str, Any]]
     blocks: list[dict[str, Any]]
@@ -175,8 +202,8 @@ class EnsembleEstimate(_Answer):
     rule: str
     caution: str
     voting: str
-    metric: str
-    mean: Number
+    metric: str = Field(description=API_ORIENTATION)
+    mean: Number = Field(description=f"in {ORIENTED}")
     sd: Number
     n: int
     n_missing: int
@@ -196,8 +223,8 @@ class Ensemble(_Answer):
     note: str
     created_at: str
     voting: str
-    metric: str
-    estimate_mean: Number
+    metric: str = Field(description=API_ORIENTATION)
+    estimate_mean: Number = Field(description=f"in {ORIENTED}")
     estimate_sd: Number
     members: list[str]
     url: str

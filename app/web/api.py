@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import asdict
 from typing import Literal
 
 from fastapi import APIRouter, BackgroundTasks, Query, Request
@@ -24,6 +25,12 @@ from foldwise.web.pages.assessment_detail import assessment_context
 from foldwise.web.pages.index import index_context
 from foldwise.web.push import OPENAPI, PushRoute, stored
 from foldwise.web.serialise import records, to_csv
+from foldwise.web.shipping import shipping_json
+
+# Beside a CSV download, where the file itself has no room for it: how the score column is oriented.
+SCORE_SIGN_HEADER = "x-foldwise-score-sign"
+SCORE_SIGN_NOTE = ("scikit-learn: greater is better; a metric named neg_* is the negated loss "
+                   "(neg_root_mean_squared_error = -RMSE)")
 
 router = APIRouter(prefix="/api")
 
@@ -62,20 +69,23 @@ def assessment_detail_json(reader: ReaderDep, metric: str | None = None):
         "fingerprint": record.fingerprint, "versions": record.versions, "seeds": record.seeds,
         "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": page.estimate,
         "family_summary": page.summary, "n_failures": page.n_failures, "failures": page.failures,
+        "headline": asdict(page.headline), "shipping": shipping_json(page.shipping),
     }
 
 
 @router.get("/assessments/{uuid}/scores", name="assessment_scores",
             response_model=list[InnerScoreRow] | list[OuterScoreRow],
             responses={200: {"content": {"text/csv": {"schema": {"type": "string"}}},
-                             "description": "the scores, as JSON rows or (format=csv) a CSV download"},
+                             "description": "the scores, as JSON rows or (format=csv) a CSV download, in "
+                                            "scikit-learn's orientation: a neg_* metric is the negated loss"},
                        **error_responses(404, 422)})
 def assessment_scores(reader: ReaderDep, level: Literal["inner", "outer"] = "outer",
            format: Literal["json", "csv"] = Query("json")):
     frame = reader.inner() if level == "inner" else reader.outer()
     if format == "csv":
         return Response(to_csv(frame), media_type="text/csv", headers={
-            "content-disposition": f'attachment; filename="{reader.uuid}-{level}-scores.csv"'})
+            "content-disposition": f'attachment; filename="{reader.uuid}-{level}-scores.csv"',
+            SCORE_SIGN_HEADER: SCORE_SIGN_NOTE})
     return records(frame)
 
 

@@ -11,12 +11,13 @@ import foldwise
 from foldwise.keys import KeyFile
 from foldwise.settings import Settings
 from foldwise.store import make_engine
-from foldwise.web import api, errors, report, sharing
+from foldwise.web import api, errors, live_reports, report, sharing, shipping
 from foldwise.web.assets import app_assets, static_url
 from foldwise.web.charts.base import chart_style
 from foldwise.web.compression import Compressed
 from foldwise.web.formatting import CAUTION, FILTERS
 from foldwise.web.methods import MethodTable
+from foldwise.web.metric_display import API_ORIENTATION, displays_json, metric_display
 from foldwise.web.openapi import openapi_of
 from foldwise.web.pages import (
     assessment_detail,
@@ -27,6 +28,7 @@ from foldwise.web.pages import (
     index,
     inner_detail,
     interval_method,
+    live_runs,
     optimism,
     paired_comparison,
     ranking,
@@ -39,6 +41,7 @@ from foldwise.web.security import Guard
 def create_app(settings: Settings) -> FastAPI:
     # The interactive docs would load their scripts from a CDN, so they are off; the schema stays.
     app = FastAPI(title="foldwise", version=foldwise.__version__, docs_url=None, redoc_url=None,
+                  description=f"The JSON answers behind the foldwise dashboard. {API_ORIENTATION}",
                   openapi_url="/api/openapi.json", lifespan=_lifespan)
     keys = KeyFile(settings.keys_path())
     if not settings.loopback and not keys.active("read"):
@@ -50,7 +53,8 @@ def create_app(settings: Settings) -> FastAPI:
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.filters.update(FILTERS)
     templates.env.globals.update(caution=CAUTION, version=foldwise.__version__, static_url=static_url,
-                                 chart_style=chart_style())
+                                 chart_style=chart_style(), metric_display=metric_display,
+                                 metric_displays=displays_json)
     app.state.templates = templates
 
     # Static files and plotly.js under /static/<digest>/<name>, gzipped once and cached for a year.
@@ -61,6 +65,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(index.router)
     app.include_router(assessment_detail.router)
     app.include_router(report.router)
+    app.include_router(shipping.router)
     app.include_router(interval_method.router)
     app.include_router(score_distributions.router)
     app.include_router(fold_winners.router)
@@ -72,6 +77,8 @@ def create_app(settings: Settings) -> FastAPI:
     app.include_router(assessments_compare.router)
     app.include_router(ensembles.router)
     app.include_router(sharing.router)
+    app.include_router(live_runs.router)
+    app.include_router(live_reports.router)
     app.openapi = openapi_of(app, reads_need_key=settings.reads_need_key)
     errors.install(app, templates)
     app.add_middleware(Guard, keys=keys, reads_need_key=settings.reads_need_key,

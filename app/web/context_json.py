@@ -9,9 +9,10 @@ import types
 import typing
 from typing import Any
 
-from pydantic import BaseModel, ConfigDict, create_model
+from pydantic import BaseModel, ConfigDict, Field, create_model
 
 from foldwise.store import AssessmentRecord
+from foldwise.web.metric_display import API_ORIENTATION
 from foldwise.web.serialise import plain
 
 
@@ -45,10 +46,15 @@ def context_model(context_class: type) -> type[BaseModel]:
     """The response model of ``context_json(context)``: the dataclass's fields as JSON names their types,
     numbers nullable (NaN is null), the record as what names it, figures left out."""
     hints = typing.get_type_hints(context_class)
-    fields = {field.name: (_json_type(hints[field.name]), ...) for field in dataclasses.fields(context_class)
-              if not field.name.endswith(("_figure", "_figures"))}
+    fields = {field.name: (_json_type(hints[field.name]), _described(field.name))
+              for field in dataclasses.fields(context_class) if not field.name.endswith(("_figure", "_figures"))}
     return create_model(context_class.__name__.removesuffix("Context") or context_class.__name__,
                         __config__=ConfigDict(extra="allow"), **fields)
+
+
+def _described(name: str):
+    # The metric of a page's answer says how every score in it is oriented (the page shows losses positive).
+    return Field(..., description=API_ORIENTATION) if name == "metric" else ...
 
 
 class _RecordRef(BaseModel):

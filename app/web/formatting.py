@@ -1,10 +1,13 @@
-"""Jinja filters: how numbers, designs and parameters read on a page."""
+"""Jinja filters: how numbers, designs and parameters read on a page (a metric's sign: metric_display)."""
 
 from __future__ import annotations
 
 import math
 
 from markupsafe import Markup
+
+from foldwise.stats.paired import probability_text
+from foldwise.web.metric_display import metric_display
 
 CAUTION = ("A cross-validated estimate describes the data at hand. A model used on patients, credit or "
            "safety needs external validation and must follow local regulation and licensed practice.")
@@ -14,6 +17,27 @@ def score(value, digits: int = 3) -> str:
     if value is None or (isinstance(value, float) and math.isnan(value)):
         return "–"
     return f"{value:.{digits}f}"
+
+
+def probability(value) -> str:
+    """A posterior probability as the comparison's verdict writes it (``probability_text``), so card and
+    sentence agree digit for digit."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "–"
+    return probability_text(value)
+
+
+def shown(value, metric: str, digits: int = 3) -> str:
+    """A level of ``metric`` as a page shows it: a negated loss (neg_*) flipped back to the loss itself."""
+    return score(metric_display(metric).value(value), digits)
+
+
+def shown_span(low, high, metric: str, digits: int = 3, joiner: str = " – ") -> str:
+    """A range of ``metric`` (min – max, an interval) as shown, low end first; "–" when undefined."""
+    low, high = metric_display(metric).span(low, high)
+    if low is None or high is None:
+        return "–"
+    return f"{score(low, digits)}{joiner}{score(high, digits)}"
 
 
 def design_text(n_outer: int, n_inner: int, n_repeats: int) -> str:
@@ -41,4 +65,6 @@ def json_script(text: str) -> Markup:
     return Markup(escaped.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
 
 
-FILTERS = {"score": score, "params_text": params_text, "seconds": seconds, "json_script": json_script}
+FILTERS = {"score": score, "probability": probability, "shown": shown, "shown_span": shown_span,
+           "params_text": params_text, "seconds": seconds,
+           "json_script": json_script}

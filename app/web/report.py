@@ -28,6 +28,7 @@ from foldwise.stats.paired import compare_paired
 from foldwise.web.fold_scores import family_fold_scores, fold_sizes
 from foldwise.web.formatting import CAUTION, FILTERS, params_text
 from foldwise.web.lookup import ReaderDep
+from foldwise.web.metric_display import metric_display
 from foldwise.web.resources import templates_dir
 from foldwise.web.shipping import FinalSummary, final_summary
 
@@ -116,6 +117,7 @@ def report_html(assessment: Assessment, **options) -> str:
     """The report as one HTML document (see the module docstring)."""
     environment = Environment(loader=FileSystemLoader(str(templates_dir())), autoescape=select_autoescape())
     environment.filters.update(FILTERS)
+    environment.globals.update(metric_display=metric_display)
     return environment.get_template("report.html").render(page=report_context(assessment, **options))
 
 
@@ -229,8 +231,9 @@ def _strip_chart(assessment: Assessment, summary: pd.DataFrame) -> str:
     """Each family's fold winners' outer scores as points on one line per family, the mean as a bar."""
     outer = assessment.outer_scores
     rows = outer[(outer["metric"] == assessment.selection_metric) & outer["family_winner"]]
+    display = metric_display(assessment.selection_metric)  # a negated loss is drawn as the loss itself
     families = summary["family"].tolist()
-    values = rows["score"].to_numpy(dtype=float)
+    values = display.value(rows["score"].to_numpy(dtype=float))
     finite = values[np.isfinite(values)]
     width, left, right, line = 640, 170, 20, 28
     height = 40 + line * len(families)
@@ -251,12 +254,12 @@ def _strip_chart(assessment: Assessment, summary: pd.DataFrame) -> str:
     for position, row in enumerate(summary.itertuples()):
         y = 24 + line * position
         parts.append(f'<text x="{left - 10}" y="{y + 4}" class="label">{_escape(row.family)}</text>')
-        for value in rows.loc[rows["family"] == row.family, "score"].to_numpy(dtype=float):
+        for value in display.value(rows.loc[rows["family"] == row.family, "score"].to_numpy(dtype=float)):
             if math.isfinite(value):
                 parts.append(f'<circle cx="{x(value):.1f}" cy="{y}" r="4" class="point"/>')
-        if math.isfinite(row.mean):
-            parts.append(f'<line x1="{x(row.mean):.1f}" y1="{y - 9}" x2="{x(row.mean):.1f}" y2="{y + 9}" '
-                         f'class="mean"/>')
+        mean = display.value(row.mean)
+        if math.isfinite(mean):
+            parts.append(f'<line x1="{x(mean):.1f}" y1="{y - 9}" x2="{x(mean):.1f}" y2="{y + 9}" class="mean"/>')
     parts.append("</svg>")
     return "".join(parts)
 

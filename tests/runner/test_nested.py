@@ -156,7 +156,9 @@ def test_space_that_is_not_a_dict_is_refused(cancer, classifier_space):
     with pytest.raises(TypeError, match=r"space must be a non-empty dict \{family: \(estimator, param_grid\)\} "
                                         r"or a GridSearchCV / RandomizedSearchCV, got list"):
         nested_cv(list(classifier_space.values()), X, y, progress=False)
-    with pytest.raises(TypeError, match=r"space\['tree'\] must be \(estimator, param_grid\), got DecisionTree"):
+    with pytest.raises(TypeError, match=r"space\['tree'\] must be \(estimator, param_grid\), \(estimator, "
+                                        r"distributions, n_iter\[, random_state\]\) or a GridSearchCV / "
+                                        r"RandomizedSearchCV, got DecisionTree"):
         nested_cv({"tree": DecisionTreeClassifier()}, X, y, progress=False)
 
 

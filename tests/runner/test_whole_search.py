@@ -74,7 +74,8 @@ def test_halving_search_scoring_one_metric_keeps_no_inner_scores_for_others(canc
 
 def test_scoring_other_than_the_searchs_own_selection_metric_is_refused(cancer):
     X, y = cancer
-    with pytest.raises(ValueError, match=r"the search selects by 'accuracy' but scoring names 'roc_auc' first"):
+    with pytest.raises(ValueError, match=r"HalvingGridSearchCV\(scoring=None, refit=True\) selects by 'accuracy' "
+                                         r"and wins over scoring='roc_auc'"):
         nested_cv(_halving(), X, y, outer=3, scoring="roc_auc", progress=False)
 
 

@@ -10,7 +10,8 @@ from scipy import stats
 
 from foldwise.stats.paired import compare_paired
 
-KEYS = {"n", "n_missing", "mean_diff", "sd_diff", "corrected_t", "corrected_p", "df", "bayes_a", "bayes_rope",
+KEYS = {"n", "n_missing", "mean_diff", "sd_diff", "diff_low", "diff_high", "diff_level",
+        "corrected_t", "corrected_p", "df", "bayes_a", "bayes_rope",
         "bayes_b", "posterior_loc", "posterior_scale", "wilcoxon_stat", "wilcoxon_p", "identical", "verdict"}
 
 
@@ -79,7 +80,7 @@ def test_constant_difference_gives_infinite_t_and_a_careful_verdict(shift, side)
 
 
 def _claimed_probability(verdict):
-    match = re.search(r"with probability (> )?(\d\.\d\d|1)\b", verdict)
+    match = re.search(r"with probability (> )?(\d\.\d\d\d|1)\b", verdict)
     assert match, verdict
     return float(match.group(2))
 
@@ -113,10 +114,10 @@ def test_verdict_says_the_data_do_not_decide_and_gives_three_probabilities():
     out = compare_paired(a, b, n_train=90, n_test=10, rope=0.01)
     assert max(out["bayes_a"], out["bayes_rope"], out["bayes_b"]) < 0.95
     assert out["verdict"].startswith("the data do not decide at ROPE 0.01: P(a better) = ")
-    shown = [float(x) for x in re.findall(r"= (\d\.\d\d)", out["verdict"])]
+    shown = [float(x) for x in re.findall(r"= (\d\.\d\d\d)\b", out["verdict"])]
     assert len(shown) == 3
     for number, p in zip(shown, (out["bayes_a"], out["bayes_rope"], out["bayes_b"]), strict=True):
-        assert p - 0.01 < number <= p  # rounded down to two decimals
+        assert p - 0.001 < number <= p  # rounded down to three decimals, as the cards show them
 
 
 def test_single_paired_fold_is_refused():
@@ -141,3 +142,26 @@ def test_fold_size_arrays_are_averaged_for_unequal_folds():
     assert out["corrected_t"] == pytest.approx(d.mean() / math.sqrt((0.2 + ratio) * d.var(ddof=1)), rel=1e-12)
     assert out["posterior_scale"] == pytest.approx(math.sqrt((0.2 + rho / (1 - rho)) * d.var(ddof=1)),
                                                    rel=1e-12)
+
+
+@pytest.mark.parametrize(("seed", "n", "level", "missing"), [(7, 10, 0.95, []), (8, 15, 0.9, [3, 11])])
+def test_interval_of_the_mean_difference_is_the_corrected_t_with_j_minus_1_df(seed, n, level, missing):
+    a, b = _scores(seed, n, 0.02, 0.02)
+    a[missing] = np.nan
+    n_train, n_test = np.full(n, 180.0), np.full(n, 20.0)
+    out = compare_paired(a, b, n_train=n_train, n_test=n_test, level=level)
+    d = (a - b)[~np.isnan(a)]
+    j = d.size
+    # Independent computation: Nadeau and Bengio's (2003) corrected variance, scipy.stats.t with J - 1 df.
+    half = stats.t.ppf((1 + level) / 2, j - 1) * math.sqrt((1 / j + 20 / 180) * d.var(ddof=1))
+    assert out["diff_low"] == pytest.approx(d.mean() - half, rel=1e-12)
+    assert out["diff_high"] == pytest.approx(d.mean() + half, rel=1e-12)
+    assert out["diff_level"] == level and out["n"] == j
+    # The interval is the test's acceptance region: it excludes 0 exactly when p < 1 - level.
+    assert (out["diff_low"] > 0 or out["diff_high"] < 0) == (out["corrected_p"] < 1 - level)
+
+
+def test_interval_of_a_constant_difference_is_a_point():
+    b = np.array([0.5, 0.625, 0.75, 0.875, 0.5])
+    out = compare_paired(b + 0.25, b, n_train=80, n_test=20)
+    assert out["diff_low"] == out["diff_high"] == 0.25

@@ -1,10 +1,14 @@
-"""project_wall_time against fits counted by walking the loops of a nested cross-validation."""
+"""project_wall_time against fits counted by walking the loops of a nested cross-validation; repeat_narrowing
+against the corrected t interval computed with scipy.stats."""
 
 import itertools
+import math
 
+import numpy as np
 import pytest
+from scipy import stats
 
-from foldwise.stats.planner import project_wall_time
+from foldwise.stats.planner import project_wall_time, repeat_narrowing
 
 
 def _count_fits(n_repeats, n_outer, n_inner, n_configs, n_refits):
@@ -54,3 +58,38 @@ def test_bad_input_is_refused_with_a_clear_message(kwargs, message):
     seconds = arguments.pop("mean_fit_seconds")
     with pytest.raises(ValueError, match=message):
         project_wall_time(seconds, **arguments)
+
+
+@pytest.mark.parametrize(("n_outer", "n_repeats", "n_train", "n_test"),
+                         [(5, 1, 160, 40), (3, 1, 66, 34), (4, 2, 300, 100)])
+def test_repeat_narrowing_against_the_corrected_interval_computed_from_scipy(n_outer, n_repeats, n_train, n_test):
+    plan = repeat_narrowing(n_outer=n_outer, n_repeats=n_repeats, n_train=n_train, n_test=n_test, level=0.9)
+    rng = np.random.default_rng(0)
+    spread = rng.normal(0.8, 0.03, size=200)  # any sd: the ratio does not depend on it
+
+    def width(j):
+        # Independent computation: the corrected t half-width with scipy.stats.t quantiles (Nadeau and Bengio, 2003).
+        sd = spread[:50].std(ddof=1)
+        return stats.t.ppf(0.95, j - 1) * math.sqrt((1 / j + n_test / n_train) * sd**2)
+
+    now = n_outer * n_repeats
+    assert [gain.n_repeats for gain in plan.gains] == [r for r in (2, 3, 5, 10) if r > n_repeats]
+    for gain in plan.gains:
+        assert gain.n_folds == gain.n_repeats * n_outer
+        assert gain.width_ratio == pytest.approx(width(gain.n_folds) / width(now), rel=1e-12)
+        assert gain.fits_ratio == gain.n_repeats / n_repeats
+        assert plan.limit_ratio < gain.width_ratio < 1
+    limit = stats.norm.ppf(0.95) * math.sqrt(n_test / n_train) * spread[:50].std(ddof=1) / width(now)
+    assert plan.limit_ratio == pytest.approx(limit, rel=1e-12)
+    assert plan.gains[-1].width_ratio == pytest.approx(width(10 * n_outer) / width(now), rel=1e-12)
+
+
+@pytest.mark.parametrize(("kwargs", "message"), [
+    ({"n_outer": 0}, "n_outer must be a whole number >= 1; got 0"),
+    ({"n_train": 0}, "n_train must be a positive number of rows; got 0"),
+    ({"level": 1.0}, "level must be strictly between 0 and 1; got 1.0"),
+    ({"n_outer": 1}, "needs at least 2 outer folds; the design has 1"),
+])
+def test_repeat_narrowing_refuses_bad_input(kwargs, message):
+    with pytest.raises(ValueError, match=message):
+        repeat_narrowing(**({"n_outer": 5, "n_repeats": 1, "n_train": 80, "n_test": 20} | kwargs))

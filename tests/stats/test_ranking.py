@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from foldwise.stats.ranking import nemenyi_q, rank_families
+from foldwise.stats.ranking import nemenyi_q, rank_families, ranking_verdict
 
 # Demšar (2006), Table 5(a): two-tailed Nemenyi q_0.05 for k = 2..10 (from memory, as in the module).
 DEMSAR_Q = [1.960, 2.343, 2.569, 2.728, 2.850, 2.949, 3.031, 3.102, 3.164]
@@ -125,3 +125,37 @@ def test_bad_input_is_refused_with_a_clear_message(scores, message):
 def test_nemenyi_q_refuses_fewer_than_two_families():
     with pytest.raises(ValueError, match="at least 2; got 1"):
         nemenyi_q(1)
+
+
+def _blocks(seed, n, shifts):
+    rng = np.random.default_rng(seed)
+    base = rng.uniform(0.7, 0.8, size=n)
+    return pd.DataFrame({name: base + shift + rng.normal(0, 0.01, size=n) for name, shift in shifts.items()})
+
+
+def test_the_verdict_names_who_nemenyi_tells_apart_after_friedman_rejects():
+    result = rank_families(_blocks(0, 12, {"forest": 0.05, "knn": 0.045, "tree": 0.0, "stump": -0.05}))
+    # Reference: scipy.stats.friedmanchisquare rejects at 0.05, as the sentence says.
+    assert stats.friedmanchisquare(*_blocks(0, 12, {"forest": 0.05, "knn": 0.045, "tree": 0.0,
+                                                     "stump": -0.05}).to_numpy().T).pvalue < 0.05
+    verdict = ranking_verdict(result)
+    best = min(result.mean_ranks, key=result.mean_ranks.get)
+    behind = sorted(family for family, rank in result.mean_ranks.items()
+                    if rank - result.mean_ranks[best] >= result.critical_difference)
+    assert verdict.startswith(f"{best} ranks best (mean rank {result.mean_ranks[best]:.2f} over 12 outer folds)")
+    assert "Friedman's test finds the ranks differ" in verdict
+    assert behind and all(family in verdict.split("ahead of ")[1] for family in behind)
+
+
+def test_the_verdict_says_when_friedman_does_not_reject():
+    result = rank_families(_blocks(1, 6, {"a": 0.0, "b": 0.0, "c": 0.0}))
+    assert result.friedman_p >= 0.05
+    assert "does not find the families' ranks different" in ranking_verdict(result)
+    assert "critical difference" not in ranking_verdict(result)
+
+
+def test_the_verdict_says_why_friedman_cannot_run_with_two_families():
+    result = rank_families(_blocks(2, 6, {"a": 0.02, "b": 0.0}))
+    verdict = ranking_verdict(result)
+    assert "Friedman's test cannot run: Friedman's test needs three or more families, got 2" in verdict
+    assert "critical difference" not in verdict

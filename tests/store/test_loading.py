@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 
 import foldwise
+from foldwise.store import final_selection_for, make_engine
 
 
 def _frames(assessment):
@@ -67,3 +68,9 @@ def test_the_final_selection_and_its_model_load_back_on_each_backend(store_url):
     assert loaded.payload == assessment.payload
     assert loaded.final_choice == assessment.final_choice is not None
     np.testing.assert_array_equal(loaded.final_model.predict_proba(X), assessment.final_model.predict_proba(X))
+    engine = make_engine(store_url)
+    try:
+        stored = final_selection_for(engine, assessment.uuid)
+    finally:
+        engine.dispose()
+    assert stored.has_model and stored.selection == assessment.payload.final.model_copy(update={"model_skops": None})

@@ -109,7 +109,7 @@ def test_rank_agreement_per_outer_fold_matches_scipy(client, small_assessment):
 def test_page_explains_optimism_and_draws_the_identity_line(client, small_assessment):
     _push(client, small_assessment)
     page = client.get(f"/assessments/{small_assessment.uuid}/optimism", params={"level": "family"}).text
-    assert "inner mean minus its outer score" in page and "flattered" in page
+    assert "inner mean − outer score" in page and "flattered" in page
     assert '<option value="family" selected>' in page
     found = re.search(r'<script type="application/json" id="optimism">(.*?)</script>', page, re.S)
     traces = json.loads(found.group(1))["data"]

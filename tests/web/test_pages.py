@@ -17,7 +17,8 @@ def test_index_lists_the_assessment_with_its_estimate(client, small_assessment):
     assert "breast cancer, two families" in page
     assert "3 outer × 3 inner" in page
     estimate = small_assessment.nested_estimate
-    assert f"{estimate.mean:.3f} ± {estimate.sd:.3f}" in page
+    pm = '<abbr class="pm" title="± one standard deviation over the outer folds">±</abbr>'  # ± defined on the page
+    assert f"{estimate.mean:.3f} {pm} {estimate.sd:.3f}" in page
     assert "external validation" in page  # the caution is on every page
 
 

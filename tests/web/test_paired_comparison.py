@@ -274,3 +274,27 @@ def test_page_keeps_its_state_in_a_get_form_and_cites_each_method(client, repeat
                       "Benavoli et al. (2017)", "Demšar (2006)", "Ignores the overlap of the training sets"):
         assert reference in page
     assert 'data-figure="fold-differences"' in page and 'data-figure="posterior"' in page
+
+
+def test_the_interval_of_the_mean_difference_and_the_verdict_read_as_the_cards(client, repeated):
+    _push(client, repeated)
+    query = {"a": "logistic", "b": "tree", "metric": "roc_auc", "rope": 0.01}
+    body = client.get(f"/api/assessments/{repeated.uuid}/compare", params=query).json()
+    page = client.get(f"/assessments/{repeated.uuid}/compare", params=query).text
+    d = _family_winner_scores(repeated, "logistic", "roc_auc") - _family_winner_scores(repeated, "tree", "roc_auc")
+    n_train, n_test = _fold_sizes()
+    # Reference: Nadeau and Bengio's (2003) corrected variance with scipy.stats.t, J - 1 = 5 df, mean fold sizes.
+    half = stats.t.ppf(0.975, 5) * math.sqrt((1 / 6 + n_test.mean() / n_train.mean()) * d.var(ddof=1))
+    assert body["diff_low"] == pytest.approx(d.mean() - half, rel=1e-9)
+    assert body["diff_high"] == pytest.approx(d.mean() + half, rel=1e-9)
+    assert body["diff_level"] == 0.95
+    shown = page.split('id="difference-interval">')[1].split("</p>")[0]
+    assert f"{body['diff_low']:.4f} to {body['diff_high']:.4f}" in shown and "5 df" in shown
+    # Every probability the verdict names is written as its card writes it.
+    cards = page.split('id="bayes-ttest"')[1].split("</dl>")[0]
+    numbers = [value.split("</dd>")[0] for value in cards.split("<dd>")[1:]]
+    for number in numbers:
+        assert number in ("0", "1", "&gt; 0.999", "&lt; 0.001") or len(number.split(".")[1]) == 3
+    verdict = page.split('id="verdict">')[1].split("</p>")[0]
+    probabilities = [number.replace("&gt;", ">").replace("&lt;", "<") for number in numbers]
+    assert any(shown_p in verdict.replace("&gt;", ">").replace("&lt;", "<") for shown_p in probabilities)

@@ -139,6 +139,12 @@ def test_two_families_get_ranks_and_a_note_but_no_friedman(client):
     assert sum(body["mean_ranks"].values()) == pytest.approx(3.0)  # ranks 1 and 2 in every block
     page = client.get(f"/assessments/{assessment.uuid}/ranking").text
     assert 'id="ranking-note"' in page and "three or more families" in page
+    # No Friedman, so no Nemenyi: the critical difference is neither stated nor drawn, and the verdict says why.
+    assert body["critical_difference"] is None
+    assert 'id="critical-difference"' not in page and "CD =" not in page
+    assert "Friedman&#39;s test cannot run" in page.split('id="ranking-verdict">')[1].split("</p>")[0]
+    assert body["verdict"].split("; ")[0] == (f"{body['families'][0]['family']} ranks best (mean rank "
+                                              f"{body['families'][0]['mean_rank']:.2f} over 3 outer folds)")
 
 
 def test_one_family_is_refused_with_a_message(client):
@@ -169,5 +175,11 @@ def test_page_shows_the_chart_table_and_the_caveats(client, three):
     for row in body["families"]:
         assert f"{row['mean_rank']:.2f}" in table
     assert "p-value is optimistic" in page and "it needs three or more families" in page
-    assert f"{body['critical_difference']:.3f}" in page
+    assert f"{body['critical_difference']:.3f}" in page and "CD =" in page
+    verdict = page.split('id="ranking-verdict">')[1].split("</p>")[0]
+    assert verdict.endswith(".") and ". " not in verdict  # one sentence: its only full stop ends it
+    # Reference: scipy.stats.friedmanchisquare decides which half of the sentence the page states.
+    p = stats.friedmanchisquare(*_block_scores(three, "accuracy").T).pvalue
+    said = "Friedman&#39;s test finds the ranks differ" if p < 0.05 else "does not find the families&#39; ranks"
+    assert said in verdict and verdict.startswith(body["families"][0]["family"][:1].upper())
     assert client.get(f"/api/assessments/{three.uuid}/ranking", params={"metric": "f1"}).status_code == 422

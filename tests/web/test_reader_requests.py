@@ -8,12 +8,14 @@ engine), on the app's real engine over a real SQLite file.
 from __future__ import annotations
 
 import pytest
+from made_live_reports import made_report  # tests/made_live_reports.py
 from sqlalchemy import event
 
 from foldwise.store import delete_assessment
 
 # Routes that read nothing from the store: they open no connection at all.
 NO_STORE = {"/healthz", "/api/share-links", "/api/openapi.json"}
+LIVE_RUN = "11111111-1111-4111-8111-111111111111"  # a running assessment's uuid, for the live routes
 
 
 @pytest.fixture
@@ -26,6 +28,9 @@ def stored(client, small_assessment):
     members = sorted(set(small_assessment.winners["config"]))
     saved = client.post(f"/api/assessments/{uuid}/ensembles", json={"name": "winners", "members": members})
     assert saved.status_code == 201, saved.text
+    reported = client.post(f"/api/live/{LIVE_RUN}", content=made_report(2).model_dump_json(),
+                           headers={"content-type": "application/json"})
+    assert reported.status_code == 201, reported.text
     return uuid, saved.json()["id"], members
 
 
@@ -43,12 +48,14 @@ def checkouts(client):
     event.remove(engine, "checkout", count)
 
 
-def _reads(client, uuid: str, eid: str) -> list[str]:
-    """Every GET route in the API's schema, with the stored assessment's and ensemble's ids filled in."""
+def _reads(client, uuid: str, eid: str, live: str | None = None) -> list[str]:
+    """Every GET route in the API's schema, with the stored assessment's and ensemble's ids filled in (and a
+    running assessment's, ``live``, on the live routes)."""
     paths = [path for path, operations in client.get("/api/openapi.json").json()["paths"].items()
              if "get" in operations and path not in NO_STORE]
     extra = {"/compare": f"?x={uuid}&y={uuid}", "/api/compare": f"?x={uuid}&y={uuid}"}
-    urls = [path.format(uuid=uuid, eid=eid) + extra.get(path, "") for path in paths]
+    urls = [path.format(uuid=live if live and path.startswith(("/live/", "/api/live/")) else uuid, eid=eid)
+            + extra.get(path, "") for path in paths]
     # Pages the schema leaves out, and the variants of a page that read something else.
     return urls + [f"/assessments/{uuid}/report", f"/api/assessments/{uuid}/scores?level=inner&format=csv",
                    f"/api/assessments/{uuid}/winners?level=family", f"/api/assessments/{uuid}/ensembles?format=csv",
@@ -58,7 +65,7 @@ def _reads(client, uuid: str, eid: str) -> list[str]:
 
 def test_every_read_of_a_stored_assessment_opens_one_connection(client, stored, checkouts):
     uuid, eid, members = stored
-    urls = _reads(client, uuid, eid)
+    urls = _reads(client, uuid, eid, live=LIVE_RUN)
     assert len(urls) > 30  # every page, its JSON twin and the downloads
     counts = {}
     for url in urls:

@@ -11,6 +11,7 @@ from refusals import message  # tests/web/refusals.py: pytest puts this folder o
 from scipy import stats
 from sklearn.datasets import load_breast_cancer
 from sklearn.linear_model import LogisticRegression
+from sklearn.model_selection import RepeatedStratifiedKFold, check_cv
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier
@@ -29,16 +30,34 @@ def _figure(page: str, chart_id: str) -> dict:
     return json.loads(found.group(1))
 
 
-def _expected_summary(scores: np.ndarray) -> dict:
-    """Mean, sample sd and the Student-t 95% interval (Student 1908), via scipy.stats.t.interval."""
+def _traces(figure: dict, role: str) -> list[dict]:
+    """The figure's traces of one role (app/web/charts/distributions.py: "box", "points" or "fold")."""
+    return [trace for trace in figure["data"] if trace.get("meta", {}).get("role") == role]
+
+
+def _expected_summary(scores: np.ndarray, n_train: float, n_test: float) -> dict:
+    """Mean, sample sd, the plain Student-t 95% interval as a spread (Student 1908), via scipy.stats.t.interval,
+    and the corrected resampled t interval (Nadeau and Bengio, 2003) with scipy.stats.t quantiles."""
     n, mean, sd = scores.size, float(np.mean(scores)), float(np.std(scores, ddof=1))
     low, high = stats.t.interval(0.95, n - 1, loc=mean, scale=sd / np.sqrt(n))
+    half = stats.t.ppf(0.975, n - 1) * np.sqrt((1 / n + n_test / n_train) * sd**2)
     return {"n": n, "mean": mean, "sd": sd, "min": float(scores.min()), "max": float(scores.max()),
-            "ci_low": low, "ci_high": high}
+            "spread_low": low, "spread_high": high, "interval_low": mean - half, "interval_high": mean + half}
 
 
-def _assert_summary(served: dict, scores: np.ndarray) -> None:
-    expected = _expected_summary(scores)
+def _sizes() -> tuple[float, float]:
+    """Mean outer training and test sizes of the small assessment (conftest: every other row of the bundled
+    breast-cancer data, outer=3), from scikit-learn's own splitter for a classifier."""
+    X, y = load_breast_cancer(return_X_y=True)
+    folds = list(check_cv(3, y[::2], classifier=True).split(X[::2], y[::2]))
+    return float(np.mean([len(train) for train, _ in folds])), float(np.mean([len(test) for _, test in folds]))
+
+
+def _assert_summary(served: dict, scores: np.ndarray, n_train: float | None = None,
+                    n_test: float | None = None) -> None:
+    if n_train is None:
+        n_train, n_test = _sizes()
+    expected = _expected_summary(scores, n_train, n_test)
     assert served["n"] == expected.pop("n")
     assert served["n_missing"] == 0
     for name, value in expected.items():
@@ -110,7 +129,7 @@ def test_every_configuration_when_every_configuration_was_refit(client, small_as
         mine = [g["summary"]["mean"] for g in body["config_groups"] if g["family"] == family]
         assert mine == sorted(mine, reverse=True)
     page = client.get(f"/assessments/{uuid}/distributions", params={"by": "config"}).text
-    assert len(_figure(page, "distributions")["data"]) == len(configs)
+    assert len(_traces(_figure(page, "distributions"), "box")) == len(configs)
     assert '<option value="config" selected>' in page
     assert 'id="config-estimates"' in page
 
@@ -137,10 +156,12 @@ def test_page_shows_the_table_in_family_colours(client, small_assessment):
     for group in body["family_groups"]:
         summary = group["summary"]
         assert f"{summary['mean']:.3f}" in table
-        assert f"{summary['ci_low']:.3f} – {summary['ci_high']:.3f}" in table
+        assert f"{summary['interval_low']:.3f} – {summary['interval_high']:.3f}" in table
+        assert f"{summary['spread_low']:.3f} – {summary['spread_high']:.3f}" in table  # no repeats: shown as spread
         assert f"background: {body['colours'][group['family']]}" in table
+    assert "t spread" in table and "corrected resampled t" in page
     figure = _figure(page, "distributions")
-    assert [trace["marker"]["color"] for trace in figure["data"]] == [
+    assert [trace["line"]["color"] for trace in _traces(figure, "box")] == [
         body["colours"][g["family"]] for g in body["family_groups"]]
 
 
@@ -152,3 +173,34 @@ def test_without_refit_all_the_configuration_view_says_why(client, winners_only)
     assert "refit_all" in body["message"]
     page = client.get(f"/assessments/{uuid}/distributions", params={"by": "config"}).text
     assert 'id="view-message"' in page and 'id="config-estimates"' not in page
+
+
+def test_a_repeated_design_never_shows_the_plain_t_interval(client):
+    """With repeats the plain t over folds covered about half the time (issue 15's table): it is not shown, and
+    the corrected interval is, computed here with scipy.stats.t on the repeated folds (Bouckaert and Frank, 2004)."""
+    X, y = load_breast_cancer(return_X_y=True)
+    X, y = X[::4], y[::4]
+    splitter = RepeatedStratifiedKFold(n_splits=3, n_repeats=2, random_state=0)
+    assessment = foldwise.nested_cv({"tree": (DecisionTreeClassifier(random_state=0), {"max_depth": [1, 3]}),
+                                     "logistic": (make_pipeline(StandardScaler(), LogisticRegression()),
+                                                  {"logisticregression__C": [0.1]})},
+                                    X, y, outer=splitter, inner=2, n_jobs=1, progress=False, name="repeated")
+    _push(client, assessment)
+    body = client.get(f"/api/assessments/{assessment.uuid}/distributions").json()
+    page = client.get(f"/assessments/{assessment.uuid}/distributions").text
+    folds = list(splitter.split(X, y))  # reference: the splitter's own folds, repeat by repeat
+    n_train = float(np.mean([len(train) for train, _ in folds]))
+    n_test = float(np.mean([len(test) for _, test in folds]))
+    outer = assessment.outer_scores
+    winners = outer[(outer["metric"] == assessment.selection_metric) & outer["overall_winner"]]["score"]
+    winners = winners.to_numpy(dtype=float)
+    expected = _expected_summary(winners, n_train, n_test)
+    assert body["overall"]["interval_low"] == pytest.approx(expected["interval_low"], abs=1e-12)
+    assert body["overall"]["interval_high"] == pytest.approx(expected["interval_high"], abs=1e-12)
+    assert body["spread_shown"] is False and body["overall"]["spread_low"] is None
+    assert all(group["summary"]["spread_low"] is None for group in body["family_groups"])
+    # The page shows the corrected interval beside the nested estimate and never the plain t's numbers.
+    row = page.split('id="nested-estimate-row"')[1].split("</tr>")[0]
+    assert f"{expected['interval_low']:.3f} – {expected['interval_high']:.3f}" in row
+    assert f"{expected['spread_low']:.3f}" not in page and "t spread" not in page
+    assert "corrected resampled t" in page

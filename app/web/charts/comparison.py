@@ -6,24 +6,29 @@ import numpy as np
 import plotly.graph_objects as go
 from scipy import stats
 
+from foldwise.stats.paired import probability_text
 from foldwise.web.charts.base import INK, MUTED, figure_json, styled
+from foldwise.web.metric_display import metric_display
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
 
 
 def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str, str],
-                            colours: tuple[str, str]) -> str:
-    """Bars of a − b per outer fold, grouped by repeat, with the zero line and the ±ROPE band."""
+                            colours: tuple[str, str], metric: str) -> str:
+    """Bars of a − b per outer fold (positive favours a), grouped by repeat, with the zero line and the ±ROPE band."""
+    display = metric_display(metric)
+    difference = display.difference(_short(names[0]), _short(names[1]))
     labels = [_fold_label(fold) for fold in folds]
     present = [fold for fold in folds if fold["diff"] is not None]
     against = colours[1] if colours[1] != colours[0] else MUTED
     figure = go.Figure(go.Bar(
         x=[_fold_label(fold) for fold in present], y=[fold["diff"] for fold in present],
         marker_color=[colours[0] if fold["diff"] >= 0 else against for fold in present],
-        customdata=[[fold["repeat"], fold["outer_fold"], fold["a"], fold["b"]] for fold in present],
+        customdata=[[fold["repeat"], fold["outer_fold"], display.value(fold["a"]), display.value(fold["b"])]
+                    for fold in present],
         hovertemplate=(f"repeat %{{customdata[0]}}, outer fold %{{customdata[1]}}<br>{_short(names[0])}: "
-                       f"%{{customdata[2]:.4f}}<br>{_short(names[1])}: %{{customdata[3]:.4f}}"
-                       "<br>difference %{y:.4f}<extra></extra>")))
+                       f"{display.name} %{{customdata[2]:.4f}}<br>{_short(names[1])}: {display.name} "
+                       f"%{{customdata[3]:.4f}}<br>{difference} = %{{y:.4f}}<extra></extra>")))
     missing = [fold for fold in folds if fold["diff"] is None]
     if missing:
         figure.add_scatter(x=[_fold_label(fold) for fold in missing], y=[0] * len(missing), mode="markers",
@@ -35,13 +40,14 @@ def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str,
                for position in range(1, len(folds)) if folds[position]["repeat"] != folds[position - 1]["repeat"]]
     figure.update_layout(shapes=shapes, annotations=annotations)
     figure.update_xaxes(type="category", categoryorder="array", categoryarray=labels)
-    styled(figure, x_title="outer fold (r = repeat, f = fold)",
-           y_title=f"{_short(names[0])} − {_short(names[1])}", height=340)
+    styled(figure, x_title="outer fold (r = repeat, f = fold)", y_title=difference, height=340)
     return figure_json(figure)
 
 
-def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str]) -> str:
-    """Density of the Student posterior of the mean difference a − b, ROPE shaded, probabilities labelled."""
+def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str],
+                     metric: str) -> str:
+    """Density of the Student posterior of the mean difference a − b (positive favours a), ROPE shaded,
+    probabilities labelled."""
     loc, scale, df = result["posterior_loc"], result["posterior_scale"], result["df"]
     figure = go.Figure()
     if scale > 0:
@@ -67,14 +73,15 @@ def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colou
     annotations += [{"x": position, "xref": "paper", "y": 1.1, "yref": "paper", "xanchor": anchor, "text": text,
                      "showarrow": False} for position, anchor, text in labels]
     figure.update_layout(shapes=shapes, annotations=annotations)
-    styled(figure, x_title=f"mean difference {_short(names[0])} − {_short(names[1])}", y_title="density",
-           height=360)
+    difference = metric_display(metric).difference(_short(names[0]), _short(names[1]))
+    styled(figure, x_title=f"mean difference {difference}", y_title="density", height=360)
     figure.update_layout(margin={"t": 60})
     return figure_json(figure)
 
 
-def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str, str]) -> str:
-    """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank."""
+def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: dict[str, str]) -> str:
+    """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank; no CD
+    (None) when Friedman's test could not run, since Nemenyi's comparisons follow only from it."""
     order = sorted(mean_ranks, key=mean_ranks.get)
     best, k = mean_ranks[order[0]], len(order)
     figure = go.Figure(go.Scatter(
@@ -82,22 +89,24 @@ def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str
         marker={"size": 14, "color": [colours[family] for family in order]},
         text=[f"{mean_ranks[family]:.2f}" for family in order], textposition="middle right",
         hovertemplate="%{y}: mean rank %{x:.3f}<extra></extra>"))
-    figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
-    for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
-        bar = x0 != x1
-        figure.add_shape(type="line", xref="x", yref="paper", x0=x0, x1=x1, y0=1.06 if bar else 1.03,
-                         y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
-    figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
-                          text=f"  CD = {critical_difference:.2f}", showarrow=False)
-    figure.update_xaxes(range=[0.6, max(k, 1 + critical_difference) + 0.5], dtick=1)
+    if critical_difference is not None:
+        figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
+        for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
+            bar = x0 != x1
+            figure.add_shape(type="line", xref="x", yref="paper", x0=x0, x1=x1, y0=1.06 if bar else 1.03,
+                             y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
+        figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
+                              text=f"  CD = {critical_difference:.2f}", showarrow=False)
+    figure.update_xaxes(range=[0.6, max(k, 1 + (critical_difference or 0)) + 0.5], dtick=1)
     figure.update_yaxes(type="category", autorange="reversed")
     styled(figure, x_title="mean rank over the outer folds (1 = best)", height=120 + 48 * k)
     figure.update_layout(margin={"t": 50, "l": 120})
     return figure_json(figure)
 
 
-def paired_strips_figure(comparisons: list[dict], *, rope: float) -> str:
-    """Per comparison of two assessments: each outer fold's difference x − y as a point, the mean as a bar."""
+def paired_strips_figure(comparisons: list[dict], *, rope: float, metric: str) -> str:
+    """Per comparison of two assessments: each outer fold's difference x − y (positive favours x) as a point,
+    the mean as a bar."""
     figure = go.Figure()
     usable = [c for c in comparisons if c["result"] is not None]
     for comparison in usable:
@@ -111,26 +120,30 @@ def paired_strips_figure(comparisons: list[dict], *, rope: float) -> str:
     shapes, annotations = _rope_band(rope, horizontal=False)
     figure.update_layout(shapes=[*shapes, _line("x", 0, {"color": INK, "width": 1})], annotations=annotations)
     figure.update_yaxes(type="category", autorange="reversed")
-    styled(figure, x_title="x − y per outer fold", height=110 + 46 * max(len(usable), 1))
+    styled(figure, x_title=f"{metric_display(metric).difference('x', 'y')} per outer fold",
+           height=110 + 46 * max(len(usable), 1))
     figure.update_layout(margin={"l": 220})
     return figure_json(figure)
 
 
-def intervals_figure(summaries: list[dict], *, colours: dict[str, str]) -> str:
+def intervals_figure(summaries: list[dict], *, colours: dict[str, str], metric: str | None) -> str:
     """Mean and 95% interval of each candidate in each assessment, side by side (unpaired)."""
+    display = metric_display(metric)
     figure = go.Figure()
     for side, symbol in (("x", "circle"), ("y", "diamond")):
         rows = [row for row in summaries if row[side] is not None and row[side]["mean"] is not None]
+        means = [display.value(row[side]["mean"]) for row in rows]
+        spans = [display.span(row[side]["ci_low"], row[side]["ci_high"]) for row in rows]
         figure.add_scatter(
-            x=[row["candidate"] for row in rows], y=[row[side]["mean"] for row in rows], name=side,
+            x=[row["candidate"] for row in rows], y=means, name=side,
             mode="markers", offsetgroup=side,
             marker={"symbol": symbol, "size": 12,
                     "color": [colours.get(row["candidate"], INK) for row in rows]},
             error_y={"type": "data", "symmetric": False, "color": MUTED,
-                     "array": [_gap(row[side]["ci_high"], row[side]["mean"]) for row in rows],
-                     "arrayminus": [_gap(row[side]["mean"], row[side]["ci_low"]) for row in rows]},
-            hovertemplate=f"{side}: %{{x}}<br>mean %{{y:.4f}}<extra></extra>")
-    styled(figure, y_title="mean outer score ± 95% interval", height=360)
+                     "array": [_gap(high, mean) for (_, high), mean in zip(spans, means, strict=True)],
+                     "arrayminus": [_gap(mean, low) for (low, _), mean in zip(spans, means, strict=True)]},
+            hovertemplate=f"{side}: %{{x}}<br>mean {display.name} %{{y:.4f}}<extra></extra>")
+    styled(figure, y_title=f"mean outer {display.label} ± 95% interval", height=360)
     figure.update_layout(scattermode="group", showlegend=True, legend={"title": {"text": "assessment"}})
     return figure_json(figure)
 
@@ -169,12 +182,7 @@ def _short(name: str, limit: int = 28) -> str:
 
 
 def _probability(p: float) -> str:
-    # Three decimals, but never printed as 0 or 1 unless it is exactly that.
-    if 0 < p < 0.001:
-        return "< 0.001"
-    if 0.999 < p < 1:
-        return "> 0.999"
-    return f"{p:.3f}"
+    return probability_text(p)  # as the verdict and the cards write it
 
 
 def _gap(high: float | None, low: float | None) -> float | None:

@@ -1,25 +1,67 @@
-"""How often each parameter value was a family's fold-winner choice: one small bar chart per family."""
+"""The parameter-stability strip of one family: one row per parameter, one cell per outer fold.
+
+Each cell holds the value the family's fold winner chose in that outer fold, written in the cell and
+shaded by its position in the grid, so a parameter that never moves reads as one even band and one that
+hops from fold to fold reads as a patchwork. Only a nested design has a winner per outer fold to show.
+"""
 
 from __future__ import annotations
+
+import json
+from html import escape
 
 import plotly.graph_objects as go
 
 from foldwise.web.charts.base import figure_json, styled
 
+NOT_SET = "(not set)"  # a grid point that leaves the parameter at its default
+ROW_HEIGHT, CHROME = 38, 70  # pixels per parameter, and for the fold labels and margins
+_TEXT_LIMIT = 12
 
-def choice_bars_figure(parameters: list[dict], colour: str) -> str:
-    """Bars of ``count`` for every ``parameter=value`` of a family's grid (``parameters`` as in the page)."""
-    labels, counts, shares = [], [], []
+
+def parameter_strip_figure(parameters: list[dict], folds: list[dict], colour: str, *, repeated: bool) -> str:
+    """``parameters``: the family's grid (``parameter``, ``choices`` with ``value`` and ``label``), in grid order;
+    ``folds``: every outer fold in order (``repeat``, ``outer_fold``, ``params`` of its winner or None)."""
+    columns = [f"r{fold['repeat']}·f{fold['outer_fold']}" if repeated else f"fold {fold['outer_fold']}"
+               for fold in folds]
+    shade, text, hover = [], [], []
     for parameter in parameters:
-        short = parameter["parameter"].rsplit("__", 1)[-1]
-        for value in parameter["choices"]:
-            labels.append(f"{short}={value['label']}")
-            counts.append(value["count"])
-            shares.append(0.0 if value["share"] is None else value["share"])
-    figure = go.Figure(go.Bar(x=labels, y=counts, customdata=shares, marker={"color": colour},
-                              hovertemplate="%{x}: chosen %{y} times (%{customdata:.0%})<extra></extra>"))
-    figure = styled(figure, y_title="outer folds", height=240)
-    figure.update_layout(margin={"l": 50, "r": 10, "t": 10, "b": 70})
-    figure.update_xaxes(type="category")
-    figure.update_yaxes(rangemode="tozero", dtick=1 if max(counts, default=0) <= 10 else None)
+        name, choices = parameter["parameter"], parameter["choices"]
+        position = {_key(choice["value"]): i for i, choice in enumerate(choices)}
+        shade.append([]), text.append([]), hover.append([])
+        for fold in folds:
+            chosen = _chosen(fold["params"], name, choices, position)
+            if chosen is None:  # no winner in this fold: the family failed there
+                shade[-1].append(None), text[-1].append(""), hover[-1].append("no fold winner")
+                continue
+            i, label = chosen
+            shade[-1].append(i / (len(choices) - 1) if len(choices) > 1 else 0.5)
+            text[-1].append(escape(label if len(label) <= _TEXT_LIMIT else label[: _TEXT_LIMIT - 1] + "…"))
+            hover[-1].append(escape(f"{name} = {label}"))
+    figure = go.Figure(go.Heatmap(
+        z=shade, x=columns, y=[escape(p["parameter"].rsplit("__", 1)[-1]) for p in parameters],
+        text=text, texttemplate="%{text}", customdata=hover, showscale=False, zmin=0, zmax=1, xgap=2, ygap=2,
+        colorscale=[[0, _tint(colour, 0.12)], [1, _tint(colour, 0.85)]], hoverongaps=False,
+        hovertemplate="%{customdata}<br>%{x}<extra></extra>"))
+    figure = styled(figure, height=CHROME + ROW_HEIGHT * max(len(parameters), 1))
+    figure.update_layout(margin={"l": 10, "r": 10, "t": 40, "b": 10})
+    figure.update_xaxes(type="category", side="top", showgrid=False)
+    figure.update_yaxes(type="category", autorange="reversed", automargin=True, showgrid=False)
     return figure_json(figure)
+
+
+def _chosen(params: dict | None, name: str, choices: list[dict], position: dict) -> tuple[int, str] | None:
+    """The chosen value's position in the grid and its label; None when the fold has no winner."""
+    if params is None:
+        return None
+    i = position.get(_key(params[name]) if name in params else _key(NOT_SET))
+    return None if i is None else (i, choices[i]["label"])
+
+
+def _key(value) -> str:
+    return json.dumps(value, sort_keys=True)
+
+
+def _tint(colour: str, alpha: float) -> str:
+    red, green, blue = (int(colour[i:i + 2], 16) for i in (1, 3, 5))
+    return f"rgba({red}, {green}, {blue}, {alpha})"

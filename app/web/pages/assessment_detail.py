@@ -1,4 +1,5 @@
-"""One assessment: its design, nested estimate, each family's outer scores and the fold winners."""
+"""One assessment: its headline (the nested estimate with its interval beside the non-nested best inner
+score), design, each family's outer scores, the fold winners and what to ship."""
 
 from __future__ import annotations
 
@@ -13,9 +14,11 @@ from foldwise.store import AssessmentReader, AssessmentRecord, EnsembleRecord
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
 from foldwise.web.forms import form_page
+from foldwise.web.headline import Headline, headline
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
+from foldwise.web.shipping import Shipping, shipping
 
 router = APIRouter()
 
@@ -44,6 +47,8 @@ class AssessmentContext:
     failures: list[dict]
     n_failures: int
     ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
+    headline: Headline  # nested estimate and interval beside the non-nested best inner score, on `metric`
+    shipping: Shipping  # the final choice beside the fold winners (selection metric); the ensemble follows
 
 
 def assessment_context(reader: AssessmentReader, *, metric: str | None) -> AssessmentContext:
@@ -69,13 +74,17 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
                 "n_failed": nested.n_failed, "described": nested.described}
     failures = reader.failures(limit=_FAILURES_SHOWN)
     design, families = record.design, [family.name for family in record.families]
+    summary = frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)
+    final = reader.final_selection()
+    selecting = overall if metric == design.selection_metric else reader.winners(kind="overall")
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
-        metric=metric, metrics=metrics, estimate=estimate,
-        summary=records(frames.family_summary(outer, metric, families=families, n_folds=record.n_folds)),
-        families=families,
+        metric=metric, metrics=metrics, estimate=estimate, summary=records(summary), families=families,
         colours=family_colours(families), folds=folds, failures=records(failures),
-        n_failures=record.n_failures, ensembles=reader.ensembles())
+        n_failures=record.n_failures, ensembles=reader.ensembles(),
+        headline=headline(record, metric=metric, winners=overall, sizes=reader.fold_sizes(),
+                          summary=summary, family_outer=outer, final=final),
+        shipping=shipping(record, selecting, final))
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,

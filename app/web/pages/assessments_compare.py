@@ -83,8 +83,8 @@ def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | N
         assessments=listing, x_choice=first.uuid, y_choice=second.uuid, x=first, y=second, metric=metric,
         metrics=metrics, rope=rope, paired=not reason, reason=reason, comparisons=comparisons,
         summaries=summaries,
-        differences_figure=paired_strips_figure(comparisons, rope=rope) if comparisons else None,
-        intervals_figure=intervals_figure(summaries, colours=family_colours(families)))
+        differences_figure=paired_strips_figure(comparisons, rope=rope, metric=metric) if comparisons else None,
+        intervals_figure=intervals_figure(summaries, colours=family_colours(families), metric=metric))
 
 @router.get("/compare", name="assessments_compare", response_class=HTMLResponse,
             responses=error_responses(404, 422, html=True))

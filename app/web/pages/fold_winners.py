@@ -11,7 +11,7 @@ from fastapi.responses import HTMLResponse
 
 from foldwise.payload import Configuration
 from foldwise.store import AssessmentReader, AssessmentRecord
-from foldwise.web.charts.stability import choice_bars_figure
+from foldwise.web.charts.stability import NOT_SET, parameter_strip_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.forms import form_page
@@ -20,8 +20,6 @@ from foldwise.web.palette import family_colours
 from foldwise.web.serialise import records
 
 router = APIRouter()
-
-NOT_SET = "(not set)"
 
 
 @dataclass(frozen=True)
@@ -37,7 +35,8 @@ class FamilyStability:
     family: str
     n_folds: int  # outer folds (over repeats) in which the family had a winner
     parameters: list[dict]  # {"parameter", "choices": [{"value", "label", "count", "share"}]}, grid order
-    bars_figure: str
+    by_fold: list[dict]  # every outer fold in order: {"repeat", "outer_fold", "config", "params"}, None when no winner
+    strip_figure: str
 
 
 @dataclass(frozen=True)
@@ -65,10 +64,14 @@ def fold_winners_context(reader: AssessmentReader, *, metric: str | None) -> Fol
             for repeat in range(design.n_repeats)]
     stability = []
     for family in families:
-        chosen = per_family[per_family["family"] == family]["params"].tolist()
+        mine = per_family[per_family["family"] == family]
+        chosen = mine["params"].tolist()
         parameters = _choice_counts([c for c in record.configurations if c.family == family], chosen)
-        stability.append(FamilyStability(family=family, n_folds=len(chosen), parameters=parameters,
-                                         bars_figure=choice_bars_figure(parameters, colours[family])))
+        by_fold = _by_fold(mine, design.n_repeats, design.n_outer_folds)
+        stability.append(FamilyStability(
+            family=family, n_folds=len(chosen), parameters=parameters, by_fold=by_fold,
+            strip_figure=parameter_strip_figure(parameters, by_fold, colours[family],
+                                                repeated=design.n_repeats > 1)))
     return FoldWinnersContext(record=record, metric=metric, metrics=design.metrics, families=families,
                               colours=colours, outer_folds=list(range(design.n_outer_folds)),
                               n_folds=len(overall), grid=grid, stability=stability)
@@ -83,6 +86,16 @@ def _cell(repeat: int, fold: int, overall: pd.DataFrame, per_family: pd.DataFram
     mine = {row["family"]: row for row in records(here(per_family))}
     return WinnerCell(repeat=repeat, outer_fold=fold, overall=winner[0] if winner else None,
                       by_family=[{"family": family, "winner": mine.get(family)} for family in families])
+
+
+def _by_fold(winners: pd.DataFrame, n_repeats: int, n_outer_folds: int) -> list[dict]:
+    """The family's winner in every outer fold, in order; config and params None where it had none."""
+    found = {(row["repeat"], row["outer_fold"]): row for row in records(winners[["repeat", "outer_fold", "config",
+                                                                                   "params"]])}
+    return [{"repeat": repeat, "outer_fold": fold,
+             "config": found[(repeat, fold)]["config"] if (repeat, fold) in found else None,
+             "params": found[(repeat, fold)]["params"] if (repeat, fold) in found else None}
+            for repeat in range(n_repeats) for fold in range(n_outer_folds)]
 
 
 def _choice_counts(configs: list[Configuration], chosen: list[dict]) -> list[dict]:

@@ -11,6 +11,7 @@ from foldwise.store import StoreReader
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import design_text
 from foldwise.web.lookup import StoreDep
+from foldwise.web.pages.live_runs import running_summaries
 from foldwise.web.serialise import records
 
 router = APIRouter()
@@ -38,4 +39,5 @@ def index_context(store: StoreReader, *, dataset: str | None, name: str | None) 
             responses=error_responses(422, html=True))
 def index(request: Request, store: StoreDep, dataset: str | None = None, name: str | None = None):
     context = index_context(store, dataset=dataset, name=name)
-    return request.app.state.templates.TemplateResponse(request, "index.html", {"page": context})
+    return request.app.state.templates.TemplateResponse(request, "index.html", {
+        "page": context, "running": running_summaries(request, store)})

@@ -88,8 +88,8 @@ def inner_detail_context(reader: AssessmentReader, *, repeat: int = 0, outer_fol
         failures=records(failures.drop(columns=["repeat", "outer_fold"])),
         previous_fold=folds[here - 1] if here > 0 else None,
         next_fold=folds[here + 1] if here + 1 < len(folds) else None,
-        scores_figure=inner_heatmap_figure(configs, colours, value="scores", title=f"inner score ({metric})"),
-        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", title="fit time (s)"))
+        scores_figure=inner_heatmap_figure(configs, colours, value="scores", metric=metric),
+        fit_times_figure=inner_heatmap_figure(configs, colours, value="fit_times", metric=metric))
 
 
 def _row(config, inner: pd.DataFrame, outer: pd.DataFrame, inner_folds: list[int]) -> ConfigRow:

@@ -18,7 +18,7 @@ from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -74,7 +74,7 @@ def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str
         record=record, metric=metric, metrics=record.design.metrics, level=level, families=families,
         colours=colours, points=points, summaries=summaries, agreement=agreement,
         agreement_mean=_agreement_mean(agreement), agreement_message=message,
-        optimism_figure=optimism_figure(points, colours, metric=metric))
+        optimism_figure=optimism_figure(points, colours, family_symbols(families), metric=metric))
 
 
 def _optimism(winners: pd.DataFrame) -> dict:

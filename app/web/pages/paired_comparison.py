@@ -84,8 +84,9 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
         record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
         families=families, configurations=configurations, colours=colours,
         result={key: plain(value) for key, value in result.items()}, folds=folds,
-        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours),
-        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours))
+        differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours,
+                                                   metric=metric),
+        posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours, metric=metric))
 
 
 @router.get("/assessments/{uuid}/compare", name="paired_comparison", response_class=HTMLResponse,

@@ -8,7 +8,7 @@ from fastapi import APIRouter, HTTPException, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
-from foldwise.stats.ranking import rank_families
+from foldwise.stats.ranking import rank_families, ranking_verdict
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import Ranking
 from foldwise.web.charts.comparison import ranks_figure
@@ -28,7 +28,8 @@ class RankingContext:
     metric: str
     metrics: list[str]
     colours: dict[str, str]
-    result: dict  # RankingResult's fields, JSON-safe
+    result: dict  # RankingResult's fields, JSON-safe; critical_difference None when Friedman's test cannot run
+    verdict: str  # the ranking in one sentence
     rows: list[dict]  # per family, best mean rank first: family, mean_rank, and its outer-score summary
     blocks: list[dict]  # per outer fold: repeat, outer_fold and each family's fold winner's outer score
     ranks_figure: str
@@ -50,13 +51,15 @@ def ranking_context(reader: AssessmentReader, *, metric: str | None) -> RankingC
                                                      for key in ("mean", "sd", "n")}}
             for family, rank in sorted(ranking.mean_ranks.items(), key=lambda item: item[1])]
     colours = family_colours(families)
+    result = {key: plain(getattr(ranking, key)) for key in
+              ("friedman_stat", "friedman_p", "critical_difference", "n_blocks", "n_missing", "note")}
+    if result["friedman_p"] is None:  # Nemenyi's comparisons follow Friedman's test: no test, no CD
+        result["critical_difference"] = None
     return RankingContext(
         record=record, metric=metric, metrics=record.design.metrics, colours=colours,
-        result={key: plain(getattr(ranking, key)) for key in
-                ("friedman_stat", "friedman_p", "critical_difference", "n_blocks", "n_missing", "note")}
-        | {"mean_ranks": ranking.mean_ranks},
+        result=result | {"mean_ranks": ranking.mean_ranks}, verdict=ranking_verdict(ranking),
         rows=rows, blocks=records(scores.reset_index()),
-        ranks_figure=ranks_figure(ranking.mean_ranks, ranking.critical_difference, colours))
+        ranks_figure=ranks_figure(ranking.mean_ranks, result["critical_difference"], colours))
 
 
 @router.get("/assessments/{uuid}/ranking", name="ranking", response_class=HTMLResponse,
@@ -71,5 +74,5 @@ def ranking(request: Request, reader: ReaderDep, metric: str | None = None):
 def ranking_json(reader: ReaderDep, metric: str | None = None):
     """Friedman's test over the outer folds, mean ranks (1 = best) and Nemenyi's critical difference."""
     page = ranking_context(reader, metric=metric)
-    return {"uuid": page.record.uuid, "metric": page.metric, **page.result, "families": page.rows,
-            "blocks": page.blocks}
+    return {"uuid": page.record.uuid, "metric": page.metric, **page.result, "verdict": page.verdict,
+            "families": page.rows, "blocks": page.blocks}

@@ -9,6 +9,7 @@ import pandas as pd
 from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
+from foldwise.definitions import HEADLINE_LEVEL, HEADLINE_METHOD, headline_interval
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.distributions import distribution_figure
@@ -17,7 +18,7 @@ from foldwise.web.errors import error_responses, refusal
 from foldwise.web.formatting import params_text
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
-from foldwise.web.palette import family_colours
+from foldwise.web.palette import family_colours, family_symbols
 from foldwise.web.serialise import plain, records
 
 router = APIRouter()
@@ -40,7 +41,10 @@ class ScoreGroup:
     family: str
     config: str | None  # None for a family's fold winners
     params: dict | None
-    summary: dict  # n, n_missing, mean, sd, min, max, ci_low, ci_high (score_summary), None when undefined
+    # n, n_missing, mean, sd, min, max (score_summary); interval_low, interval_high: the headline interval
+    # (definitions.headline_interval); spread_low, spread_high: the plain t interval as a description of the
+    # spread, None when the outer loop was repeated (never shown there); None where undefined
+    summary: dict
     points: list[dict]  # repeat, outer_fold, score, params
 
 
@@ -55,6 +59,9 @@ class DistributionsContext:
     selected: list[str]  # the families shown
     colours: dict[str, str]
     overall: dict  # the nested estimate: summary of the overall winners' outer scores
+    interval_method: str  # definitions.HEADLINE_METHOD, the interval of every row
+    interval_level: float
+    spread_shown: bool  # the plain t spread is shown: the outer loop was not repeated
     family_groups: list[ScoreGroup]  # sorted as asked
     config_groups: list[ScoreGroup]  # by family (family_groups' order), then as asked; empty unless by=config
     message: str  # why the per-configuration view is not shown, or ""
@@ -73,9 +80,11 @@ def score_distributions_context(reader: AssessmentReader, *, metric: str | None,
         by, message = "family", CONFIG_VIEW_NEEDS_REFIT_ALL
     # The family view needs the fold winners' rows only; the configuration view every row of the metric.
     outer = reader.outer(metric=metric, winners=None if by == "config" else "either")
-    folds = reader.fold_sizes().index
+    sizes = reader.fold_sizes()
+    folds = sizes.index
+    shape = _Shape(sizes=sizes, repeated=record.design.n_repeats > 1)
     winners = outer[outer["family_winner"]]
-    family_groups = [_group(family, family, None, None, winners[winners["family"] == family], folds)
+    family_groups = [_group(family, family, None, None, winners[winners["family"] == family], folds, shape)
                      for family in selected]
     family_groups = _sorted(family_groups, sort, key=lambda group: group.family.lower())
     config_groups: list[ScoreGroup] = []
@@ -83,17 +92,18 @@ def score_distributions_context(reader: AssessmentReader, *, metric: str | None,
         for family_group in family_groups:
             configs = [c for c in record.configurations if c.family == family_group.family]
             mine = [_group(f"{c.family}: {params_text(c.params)}", c.family, c.id, c.params,
-                           outer[outer["config"] == c.id], folds) for c in configs]
+                           outer[outer["config"] == c.id], folds, shape) for c in configs]
             position = {c.id: i for i, c in enumerate(configs)}
             config_groups += _sorted(mine, sort, key=lambda group: position[group.config])
     colours = family_colours(names)
-    overall = _summary(_by_fold(outer[outer["overall_winner"]], folds))
+    overall = _summary(_by_fold(outer[outer["overall_winner"]], folds), shape)
     shown = config_groups if by == "config" else family_groups
     return DistributionsContext(
         record=record, metric=metric, metrics=record.design.metrics, by=by, sort=sort, families=names,
-        selected=selected, colours=colours, overall=overall, family_groups=family_groups,
+        selected=selected, colours=colours, overall=overall, interval_method=HEADLINE_METHOD,
+        interval_level=HEADLINE_LEVEL, spread_shown=not shape.repeated, family_groups=family_groups,
         config_groups=config_groups, message=message,
-        distributions_figure=distribution_figure(shown, colours, metric=metric))
+        distributions_figure=distribution_figure(shown, colours, family_symbols(names), metric=metric))
 
 
 def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
@@ -110,10 +120,18 @@ def _chosen_families(names: list[str], asked: list[str] | None) -> list[str]:
     return [name for name in names if name in wanted] or names
 
 
-def _group(label, family, config, params, rows: pd.DataFrame, folds: pd.MultiIndex) -> ScoreGroup:
+@dataclass(frozen=True)
+class _Shape:
+    """What every row's summary needs of the design: fold sizes (for the interval) and whether it repeats."""
+
+    sizes: pd.DataFrame  # n_train, n_test per fold, in the folds' order
+    repeated: bool
+
+
+def _group(label, family, config, params, rows: pd.DataFrame, folds: pd.MultiIndex, shape: _Shape) -> ScoreGroup:
     points = records(rows[["repeat", "outer_fold", "score", "params"]])
     return ScoreGroup(label=label, family=family, config=config, params=params,
-                      summary=_summary(_by_fold(rows, folds)), points=points)
+                      summary=_summary(_by_fold(rows, folds), shape), points=points)
 
 
 def _by_fold(rows: pd.DataFrame, folds: pd.MultiIndex) -> pd.Series:
@@ -121,11 +139,19 @@ def _by_fold(rows: pd.DataFrame, folds: pd.MultiIndex) -> pd.Series:
     return rows.set_index(["repeat", "outer_fold"])["score"].reindex(folds)
 
 
-def _summary(scores: pd.Series) -> dict:
+def _summary(scores: pd.Series, shape: _Shape) -> dict:
     if not scores.notna().any():
         return {"n": 0, "n_missing": int(scores.size), "mean": None, "sd": None, "min": None, "max": None,
-                "ci_low": None, "ci_high": None}
-    return {name: plain(value) for name, value in asdict(score_summary(scores.to_numpy(dtype=float))).items()}
+                "interval_low": None, "interval_high": None, "spread_low": None, "spread_high": None}
+    values = scores.to_numpy(dtype=float)
+    summary = {name: plain(value) for name, value in asdict(score_summary(values)).items()}
+    interval = headline_interval(values, n_train=shape.sizes["n_train"].to_numpy(dtype=float),
+                                 n_test=shape.sizes["n_test"].to_numpy(dtype=float))
+    low, high = summary.pop("ci_low"), summary.pop("ci_high")
+    # The plain t treats the folds as independent: a description of their spread, and with repeats not even that.
+    spread = (None, None) if shape.repeated else (low, high)
+    return summary | {"interval_low": plain(interval.low), "interval_high": plain(interval.high),
+                      "spread_low": spread[0], "spread_high": spread[1]}
 
 
 def _sorted(groups: list[ScoreGroup], sort: str, *, key) -> list[ScoreGroup]:
