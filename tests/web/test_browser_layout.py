@@ -110,3 +110,19 @@ def test_a_wide_grid_scrolls_in_its_card_to_the_last_fold_with_the_repeat_column
     assert scrolled == {"wider": True, "lastText": "Outer fold 9", "lastInside": True, "firstInPlace": True}
     assert problems == []
     context.close()
+
+
+def test_a_refused_rope_is_shown_beside_its_field_with_the_comparison_drawn(browser, layout_server):
+    server, assessments, _ = layout_server
+    page = browser.new_page(viewport={"width": 1280, "height": 800})
+    response = page.goto(f"{server.url}/assessments/{assessments[0].uuid}/compare?rope=-0.5&metric=roc_auc",
+                         wait_until="load")
+    assert response.status == 422
+    page.wait_for_function("() => [...document.querySelectorAll('.chart')].every(c => c.dataset.drawn === 'true')")
+    field, message = page.locator("#paired-form [name=rope]"), page.locator("#rope-error")
+    assert field.input_value() == "-0.5" and message.is_visible() and "0 or more" in message.inner_text()
+    # Beside the field: in its label, within a few lines of it.
+    box, near = field.bounding_box(), message.bounding_box()
+    assert abs(near["y"] - box["y"]) < 80 and abs(near["x"] - box["x"]) < 400
+    assert page.locator("#verdict").is_visible()
+    page.close()
