@@ -46,7 +46,8 @@ def expected_counts(*payloads) -> dict[str, int]:
              "predictions": lambda p: len(p.predictions), "failures": lambda p: len(p.failures),
              "fitted_models": lambda p: len(p.models), "ensembles": lambda p: 0,
              "ensemble_members": lambda p: 0, "inner_summaries": _summary_count,
-             "final_selections": lambda p: int(p.final is not None)}
+             "final_selections": lambda p: int(p.final is not None),
+             "live_runs": lambda p: 0, "live_folds": lambda p: 0}  # a stored assessment writes no live report
     return {name: sum(sizes[name](p) for p in payloads) for name in TABLES}
 
 

@@ -116,8 +116,9 @@ def test_every_page_shows_rmse_positive_under_its_own_name(client, assay, pushed
     assert f"{-listed['estimate_high']:.3f} to {-listed['estimate_low']:.3f}" in index
 
     detail = client.get(f"/assessments/{pushed}").text
-    big = detail.split('class="big"')[1].split("</p>")[0]
-    assert f"{rmse:.3f}" in big and PM in big
+    headline = detail.split('id="headline"')[1].split("</section>")[0]
+    assert f'id="nested-estimate">{rmse:.3f}<' in headline and PM in headline
+    assert f"nested estimate RMSE {rmse:.3f}" in detail  # what to ship
     winners = detail.split('id="fold-winners"')[1].split("</table>")[0]
     for loss in losses.values():
         assert f"{loss:.3f}" in winners
