@@ -90,3 +90,39 @@ def test_no_page_scrolls_sideways_at_1280_or_1440(browser, layout_server):
 
 def _slug(path: str) -> str:
     return "".join(c if c.isalnum() else "-" for c in path.strip("/"))[:60] or "index"
+
+
+def test_a_wide_grid_scrolls_in_its_card_to_the_last_fold_with_the_repeat_column_in_place(browser, layout_server):
+    server, assessments, _ = layout_server
+    context = browser.new_context(viewport={"width": 1280, "height": 800})
+    page, problems = open_watched(context, f"{server.url}/assessments/{assessments[-1].uuid}/fold-winners")
+    scrolled = page.evaluate("""() => {
+      const table = document.querySelector('#winner-grid'), box = table.closest('.scroll');
+      box.scrollLeft = box.scrollWidth;
+      const frame = box.getBoundingClientRect(), heads = table.querySelectorAll('thead th');
+      const first = heads[0].getBoundingClientRect(), last = heads[heads.length - 1].getBoundingClientRect();
+      return {wider: box.scrollWidth > box.clientWidth, lastText: heads[heads.length - 1].textContent,
+              lastInside: last.right <= frame.right + 1 && last.left >= first.right - 1,
+              firstInPlace: Math.abs(first.left - frame.left) <= 1};
+    }""")
+    # 10 outer folds do not fit 1280 px: the grid scrolls inside its card, the last fold can be reached,
+    # and the repeat column stays at the card's left edge.
+    assert scrolled == {"wider": True, "lastText": "Outer fold 9", "lastInside": True, "firstInPlace": True}
+    assert problems == []
+    context.close()
+
+
+def test_a_refused_rope_is_shown_beside_its_field_with_the_comparison_drawn(browser, layout_server):
+    server, assessments, _ = layout_server
+    page = browser.new_page(viewport={"width": 1280, "height": 800})
+    response = page.goto(f"{server.url}/assessments/{assessments[0].uuid}/compare?rope=-0.5&metric=roc_auc",
+                         wait_until="load")
+    assert response.status == 422
+    page.wait_for_function("() => [...document.querySelectorAll('.chart')].every(c => c.dataset.drawn === 'true')")
+    field, message = page.locator("#paired-form [name=rope]"), page.locator("#rope-error")
+    assert field.input_value() == "-0.5" and message.is_visible() and "0 or more" in message.inner_text()
+    # Beside the field: in its label, within a few lines of it.
+    box, near = field.bounding_box(), message.bounding_box()
+    assert abs(near["y"] - box["y"]) < 80 and abs(near["x"] - box["x"]) < 400
+    assert page.locator("#verdict").is_visible()
+    page.close()

@@ -31,6 +31,7 @@ def stored(trio, db_path, client):
     # Stored oldest first, so "other" is the newest: a default of "the two newest" would not pair.
     for name in ("first", "second", "other"):
         save(trio[name].payload, str(db_path))
+    client.headers["accept"] = "text/html"  # as a browser asks for a page
     return trio
 
 
@@ -92,8 +93,11 @@ def test_a_negative_rope_is_named_beside_its_field_and_the_comparison_still_show
     assert 'id="verdict"' in response.text and "±0.01" in response.text
     empty = client.get(f"/assessments/{uuid}/compare", params=asked | {"rope": ""})
     assert empty.status_code == 200 and _form(empty.text, "paired-form").errors == {}
-    # The JSON answer keeps refusing the value outright (a script wants the 422, not a page).
+    # The JSON answer, and the page read by a script that does not ask for HTML, refuse the value outright,
+    # located at the field.
     assert client.get(f"/api/assessments/{uuid}/compare", params=asked).status_code == 422
+    scripted = client.get(f"/assessments/{uuid}/compare", params=asked, headers={"accept": "*/*"})
+    assert scripted.status_code == 422 and scripted.json()["detail"][0]["loc"] == ["query", "rope"]
 
 
 def test_an_unknown_candidate_is_named_beside_its_select_with_the_families_to_choose(client, stored):
@@ -161,7 +165,7 @@ def test_the_across_page_keeps_its_place_on_a_metric_or_rope_it_cannot_use(clien
     assert form.values["x"] == first and form.values["y"] == other
     missing = "00000000-0000-4000-8000-000000000000"
     response = client.get("/compare", params={"x": first, "y": missing})
-    assert response.status_code == 422 and "in this store" in _form(response.text, "compare-form").errors["y"]
+    assert response.status_code == 404 and "in this store" in _form(response.text, "compare-form").errors["y"]
 
 
 def test_error_pages_that_remain_say_what_to_do_next(client):

@@ -18,7 +18,7 @@ from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
-from foldwise.web.forms import keep_place, rope_from
+from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.query import ROPE_TEXT, Rope
@@ -94,9 +94,7 @@ def assessments_compare(request: Request, store: StoreDep, x: str | None = None,
     def build(x, y, metric, rope):
         return assessments_compare_context(store, x=x, y=y, metric=metric, rope=rope_from(rope))
 
-    context, form = keep_place(build, {"x": x, "y": y, "metric": metric, "rope": rope}, {})
-    return request.app.state.templates.TemplateResponse(request, "assessments_compare.html",
-                                                        {"page": context, "form": form}, status_code=form.status)
+    return form_page(request, "assessments_compare.html", build, {"x": x, "y": y, "metric": metric, "rope": rope})
 
 
 @router.get("/api/compare", name="assessments_compare_json", response_model=AssessmentsComparison,

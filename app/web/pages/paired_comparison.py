@@ -16,7 +16,7 @@ from foldwise.web.charts.comparison import fold_differences_figure, posterior_fi
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
-from foldwise.web.forms import keep_place, rope_from
+from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import ROPE_TEXT, Rope
@@ -97,9 +97,7 @@ def paired_comparison(request: Request, reader: ReaderDep, a: str | None = None,
     def build(a, b, metric, rope):
         return paired_comparison_context(reader, a=a, b=b, metric=metric, rope=rope_from(rope))
 
-    context, form = keep_place(build, {"a": a, "b": b, "metric": metric, "rope": rope}, {})
-    return request.app.state.templates.TemplateResponse(request, "paired_comparison.html",
-                                                        {"page": context, "form": form}, status_code=form.status)
+    return form_page(request, "paired_comparison.html", build, {"a": a, "b": b, "metric": metric, "rope": rope})
 
 
 @router.get("/api/assessments/{uuid}/compare", name="paired_comparison_json", response_model=PairedComparison,
