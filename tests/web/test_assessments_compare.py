@@ -145,8 +145,13 @@ def test_another_outer_split_is_not_paired_and_summaries_match_scipy(client, sto
         for candidate, row in summaries.items():
             family = None if candidate == "overall fold winners" else candidate
             scores = _winner_scores(run, "accuracy", family)
-            # Reference: the Student-t interval mean ± t_{0.975, n-1} s / sqrt(n) with scipy.stats.t.ppf.
-            half = stats.t.ppf(0.975, scores.size - 1) * scores.std(ddof=1) / math.sqrt(scores.size)
+            # Reference: the corrected resampled t interval (Nadeau and Bengio, 2003), written out here with
+            # scipy.stats.t.ppf: mean ± t_{0.975, n-1} · sqrt((1/n + n_test/n_train) · s²), the fold sizes
+            # averaged over the outer folds.
+            n_train = np.mean([fold.n_train for fold in run.payload.outer_folds])
+            n_test = np.mean([len(fold.test_indices) for fold in run.payload.outer_folds])
+            half = stats.t.ppf(0.975, scores.size - 1) * math.sqrt(
+                (1 / scores.size + n_test / n_train) * scores.var(ddof=1))
             summary = row[side]
             assert summary["n"] == 6 and summary["n_missing"] == 0
             assert summary["mean"] == pytest.approx(scores.mean(), abs=1e-12)

@@ -45,6 +45,9 @@ def test_the_report_numbers_are_the_apis(client, shipped):
     body = client.get(f"/api/assessments/{shipped.uuid}").json()
     estimate = body["nested_estimate"]
     assert _text(html, "nested-estimate") == f"accuracy {estimate['mean']:.3f} ± {estimate['sd']:.3f}"
+    interval = body["headline"]["interval"]  # the overview's headline interval, the same numbers in the report
+    assert interval["method"] == "corrected_t"
+    assert _text(html, "headline-interval") == f"95% interval <strong>{interval['low']:.3f} to {interval['high']:.3f}"
     families = re.search(r'id="families".*?</table>', html, flags=re.S).group(0)
     for row in body["family_summary"]:
         name = row["family"].replace("<", "&lt;").replace(">", "&gt;")

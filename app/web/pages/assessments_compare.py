@@ -11,6 +11,7 @@ from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
+from foldwise.definitions import headline_interval
 from foldwise.stats.paired import compare_paired
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
@@ -199,17 +200,23 @@ def _compare(kind: str, label: str, in_x: str, in_y: str, a: pd.Series, b: pd.Se
 def _summaries(x: Side, y: Side) -> list[dict]:
     families = list(dict.fromkeys([*x.families.columns, *y.families.columns]))
     rows = [{"candidate": SELECTION, "kind": "selection procedure",
-             "x": _summary(x.overall), "y": _summary(y.overall)}]
+             "x": _summary(x.overall, x.sizes), "y": _summary(y.overall, y.sizes)}]
     for family in families:
         rows.append({"candidate": family, "kind": "family",
-                     "x": _summary(x.families[family]) if family in x.families.columns else None,
-                     "y": _summary(y.families[family]) if family in y.families.columns else None})
+                     "x": _summary(x.families[family], x.sizes) if family in x.families.columns else None,
+                     "y": _summary(y.families[family], y.sizes) if family in y.families.columns else None})
     return rows
 
 
-def _summary(scores: pd.Series) -> dict:
+def _summary(scores: pd.Series, sizes: pd.DataFrame) -> dict:
+    """Mean and sd of one candidate's outer scores, with the headline interval (the corrected t: the plain t
+    over folds is no confidence interval, least of all with repeats)."""
     try:
         summary = score_summary(scores.to_numpy())
     except ValueError:  # no score left: every fit of this candidate failed
         return {"n": 0, "n_missing": int(scores.size)} | dict.fromkeys(_SUMMARY_FIELDS[2:])
-    return {key: plain(getattr(summary, key)) for key in _SUMMARY_FIELDS}
+    folds = sizes.reindex(scores.index)
+    interval = headline_interval(scores.to_numpy(dtype=float), n_train=folds["n_train"].to_numpy(dtype=float),
+                                 n_test=folds["n_test"].to_numpy(dtype=float))
+    return {key: plain(getattr(summary, key)) for key in _SUMMARY_FIELDS[:4]} | {
+        "ci_low": plain(interval.low), "ci_high": plain(interval.high)}
