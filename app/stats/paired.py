@@ -219,8 +219,34 @@ def wilcoxon_signed_rank(a, b) -> WilcoxonResult:
     return WilcoxonResult(stat=float(result.statistic), p=float(result.pvalue))
 
 
+@dataclass(frozen=True)
+class PairedResult:
+    """``compare_paired``'s answer: the three paired tests of the differences a − b, the corrected interval of
+    their mean and a verdict. Fields in the order the JSON answers list them."""
+
+    n: int  # pairs used
+    n_missing: int  # pairs left out because a score was NaN (a failed fit)
+    mean_diff: float
+    sd_diff: float  # ddof=1
+    diff_low: float  # the corrected interval of the mean difference at diff_level
+    diff_high: float
+    diff_level: float
+    corrected_t: float  # ±inf when every difference is the same non-zero value
+    corrected_p: float
+    df: int  # J − 1, for the t-test, the interval and the posterior alike
+    bayes_a: float  # P(a better by more than the ROPE)
+    bayes_rope: float  # P(within the ROPE)
+    bayes_b: float  # P(b better by more than the ROPE)
+    posterior_loc: float  # the Student posterior of the mean difference: its centre and scale
+    posterior_scale: float  # 0 when every difference is the same: a point mass
+    wilcoxon_stat: float
+    wilcoxon_p: float
+    identical: bool  # every difference zero
+    verdict: str  # a plain sentence drawn from the Bayesian probabilities
+
+
 def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
-                   names: tuple[str, str] = ("a", "b"), level: float = 0.95) -> dict:
+                   names: tuple[str, str] = ("a", "b"), level: float = 0.95) -> PairedResult:
     r"""Compare two candidates on the same outer folds with all three paired tests and a verdict.
 
     Parameters
@@ -239,7 +265,7 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
 
     Returns
     -------
-    dict
+    PairedResult
         ``n``, ``n_missing``, ``mean_diff``, ``sd_diff``, ``diff_low`` and ``diff_high`` (the corrected
         interval of the mean difference at ``level``, given as ``diff_level``), ``corrected_t``,
         ``corrected_p``, ``df``, ``bayes_a``, ``bayes_rope``, ``bayes_b``, ``posterior_loc``, ``posterior_scale``,
@@ -274,9 +300,9 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     Examples
     --------
     >>> out = compare_paired([0.8, 0.9, 0.7], [0.8, 0.9, 0.7], n_train=80, n_test=20)
-    >>> out["identical"], out["corrected_p"], out["bayes_rope"]
+    >>> out.identical, out.corrected_p, out.bayes_rope
     (True, 1.0, 1.0)
-    >>> out["verdict"]
+    >>> out.verdict
     'no difference: the two candidates scored identically on every outer fold'
     """
     _check_rope(rope)
@@ -289,17 +315,14 @@ def compare_paired(a, b, *, n_train, n_test, rope: float = 0.01,
     full = np.full(keep.size, np.nan)
     full[keep] = d
     interval = corrected_t_interval(full, n_train=n_train, n_test=n_test, level=level)
-    return {
-        "n": ttest.n, "n_missing": n_dropped,
-        "mean_diff": ttest.mean_diff, "sd_diff": ttest.sd_diff,
-        "diff_low": interval.low, "diff_high": interval.high, "diff_level": interval.level,
-        "corrected_t": ttest.t, "corrected_p": ttest.p, "df": ttest.df,
-        "bayes_a": bayes.p_a, "bayes_rope": bayes.p_rope, "bayes_b": bayes.p_b,
-        "posterior_loc": bayes.loc, "posterior_scale": bayes.scale,
-        "wilcoxon_stat": wilcoxon.stat, "wilcoxon_p": wilcoxon.p,
-        "identical": identical,
-        "verdict": _verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names),
-    }
+    return PairedResult(
+        n=ttest.n, n_missing=n_dropped, mean_diff=ttest.mean_diff, sd_diff=ttest.sd_diff,
+        diff_low=interval.low, diff_high=interval.high, diff_level=interval.level,
+        corrected_t=ttest.t, corrected_p=ttest.p, df=ttest.df,
+        bayes_a=bayes.p_a, bayes_rope=bayes.p_rope, bayes_b=bayes.p_b,
+        posterior_loc=bayes.loc, posterior_scale=bayes.scale,
+        wilcoxon_stat=wilcoxon.stat, wilcoxon_p=wilcoxon.p, identical=identical,
+        verdict=_verdict(bayes, rope=rope, constant=ttest.sd_diff == 0, names=names))
 
 
 def _differences(a, b, *, what: str) -> tuple[np.ndarray, int, np.ndarray]:

@@ -15,7 +15,7 @@ from foldwise.web import api, errors, live_reports, report, sharing, shipping
 from foldwise.web.assets import app_assets, static_url
 from foldwise.web.charts.base import chart_style
 from foldwise.web.compression import Compressed
-from foldwise.web.formatting import CAUTION, FILTERS
+from foldwise.web.formatting import CAUTION, FILTERS, TESTS
 from foldwise.web.methods import MethodTable
 from foldwise.web.metric_display import API_ORIENTATION, displays_json, metric_display
 from foldwise.web.openapi import openapi_of
@@ -52,6 +52,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.state.engine = make_engine(settings.db_url)
     templates = Jinja2Templates(directory=str(templates_dir()))
     templates.env.filters.update(FILTERS)
+    templates.env.tests.update(TESTS)
     templates.env.globals.update(caution=CAUTION, version=foldwise.__version__, static_url=static_url,
                                  chart_style=chart_style(), metric_display=metric_display,
                                  metric_displays=displays_json)

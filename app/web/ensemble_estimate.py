@@ -14,7 +14,7 @@ import pandas as pd
 from fastapi import HTTPException
 
 from foldwise import frames
-from foldwise.stats.paired import compare_paired
+from foldwise.stats.paired import PairedResult, compare_paired
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
@@ -46,7 +46,7 @@ class EnsembleResult:
     selection: dict  # fold_scores and summary of the overall fold winners
     best_family: dict  # family, fold_scores and summary of the best family's fold winners
     folds: list[dict]  # repeat, outer_fold, ensemble, selection, diff, best_family
-    comparison: dict | None  # compare_paired's fields, JSON-safe; None when it cannot be made
+    comparison: PairedResult | None  # the ensemble (a) against the selection procedure (b); None when it cannot be made
     comparison_note: str | None
     rope: float
     metrics: list[dict]  # per recorded metric: its summary, or why it cannot be computed
@@ -82,7 +82,7 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
         comparison = compare_paired(mine.to_numpy(), selection.to_numpy(),
                                     n_train=sizes["n_train"].to_numpy(), n_test=sizes["n_test"].to_numpy(),
                                     rope=rope, names=("the ensemble", "the selection procedure"))
-        comparison, comparison_note = {key: plain(value) for key, value in comparison.items()}, None
+        comparison_note = None
     except ValueError as error:
         comparison, comparison_note = None, f"no paired comparison: {error}"
     folds = [{"repeat": pair["repeat"], "outer_fold": pair["outer_fold"], "ensemble": pair["a"],

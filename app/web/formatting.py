@@ -1,8 +1,9 @@
-"""Jinja filters: how numbers, designs and parameters read on a page (a metric's sign: metric_display)."""
+"""Jinja filters and tests: how numbers, designs and parameters read on a page (a metric's sign: metric_display)."""
 
 from __future__ import annotations
 
 import math
+import numbers
 
 from markupsafe import Markup
 
@@ -64,6 +65,14 @@ def json_script(text: str) -> Markup:
     escaped = text.replace("&", "\\u0026").replace("<", "\\u003c").replace(">", "\\u003e")
     return Markup(escaped.replace("\u2028", "\\u2028").replace("\u2029", "\\u2029"))
 
+
+def finite(value) -> bool:
+    """``{% if x is finite %}``: a number that can be shown as one (not None, NaN or ±inf); statistic results
+    reach the templates as computed, NaN and inf included."""
+    return isinstance(value, numbers.Real) and not isinstance(value, bool) and math.isfinite(value)
+
+
+TESTS = {"finite": finite}
 
 FILTERS = {"score": score, "probability": probability, "shown": shown, "shown_span": shown_span,
            "params_text": params_text, "seconds": seconds,

@@ -181,7 +181,7 @@ def _reading(record: AssessmentRecord, metric: str, summary: pd.DataFrame, famil
     scores = family_fold_scores(family_outer, metric, [a, b], folds=sizes.index)
     try:
         verdict = compare_paired(scores[a].to_numpy(), scores[b].to_numpy(), n_train=sizes["n_train"].to_numpy(),
-                                 n_test=sizes["n_test"].to_numpy(), rope=_ROPE, names=(a, b))["verdict"]
+                                 n_test=sizes["n_test"].to_numpy(), rope=_ROPE, names=(a, b)).verdict
     except ValueError:  # fewer than two outer folds where both have a score
         verdict = None
     return FamilyReading(f"{lead}, {gap:.3f} ahead of {b} ({shown.value(second['mean']):.3f})", a, b, verdict)

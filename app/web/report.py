@@ -205,9 +205,9 @@ def _comparison(assessment: Assessment, summary: pd.DataFrame, *, rope: float) -
                                 n_test=sizes["n_test"].to_numpy(), rope=rope, names=(a, b))
     except ValueError:  # too few folds where both have a score: the table says so by its counts
         return None
-    return Comparison(a=a, b=b, n=result["n"], mean_diff=result["mean_diff"], corrected_p=result["corrected_p"],
-                      bayes_a=result["bayes_a"], bayes_rope=result["bayes_rope"], bayes_b=result["bayes_b"],
-                      rope=rope, verdict=result["verdict"])
+    return Comparison(a=a, b=b, n=result.n, mean_diff=result.mean_diff, corrected_p=result.corrected_p,
+                      bayes_a=result.bayes_a, bayes_rope=result.bayes_rope, bayes_b=result.bayes_b,
+                      rope=rope, verdict=result.verdict)
 
 
 def _final(assessment: Assessment) -> FinalSummary | None:

@@ -19,6 +19,7 @@ from fastapi.responses import HTMLResponse, Response
 
 from foldwise.store import AssessmentReader, AssessmentRecord, StoredFinal
 from foldwise.web.answers import WhatToShip
+from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses
 from foldwise.web.formatting import params_text
 from foldwise.web.lookup import ReaderDep
@@ -148,7 +149,7 @@ def what_to_ship_json(reader: ReaderDep):
     overall fold winners compared with the selection procedure on the same outer folds."""
     record = reader.record
     ship = shipping(record, reader.winners(kind="overall"), reader.final_selection())
-    return {"uuid": record.uuid, **shipping_json(ship), "ensemble": asdict(fold_winner_ensemble(reader))}
+    return {"uuid": record.uuid, **shipping_json(ship), "ensemble": context_json(fold_winner_ensemble(reader))}
 
 
 def _said(detail) -> str:

@@ -20,6 +20,7 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.tree import DecisionTreeClassifier
 
 import foldwise
+from foldwise.runner.recorder import Recorder
 
 # Every third row of the bundled breast-cancer data: 190 rows, so 3 folds hold 64, 63 and 63 test rows.
 X, Y = load_breast_cancer(return_X_y=True)
@@ -188,6 +189,35 @@ def test_identical_candidates_say_no_difference(client, repeated):
     assert body["verdict"].startswith("no difference")
     page = client.get(f"/assessments/{repeated.uuid}/compare", params={"a": "tree", "b": "tree"})
     assert page.status_code == 200 and "no difference" in page.text
+
+
+def _constant_gap():
+    """Two one-configuration families whose outer scores differ by exactly 0.25 on each of 4 outer folds (exact in
+    binary, so the differences have zero variance)."""
+    rec = Recorder("constant gap", task="classification", metrics=["accuracy"], n_samples=40)
+    for o, level in enumerate((0.5, 0.625, 0.5, 0.625)):
+        rec.outer_fold(0, o, n_train=30, test=range(o * 10, o * 10 + 10))
+        for family, gap in (("ahead", 0.25), ("behind", 0.0)):
+            rec.inner(0, o, 0, family=family, params={}, scores={"accuracy": level + gap})
+            rec.inner(0, o, 1, family=family, params={}, scores={"accuracy": level + gap})
+            rec.outer(0, o, family=family, params={}, scores={"accuracy": level + gap})
+    return rec.finish()
+
+
+def test_constant_difference_reads_as_infinite_t_on_the_page_and_null_in_json(client):
+    assessment = _constant_gap()
+    _push(client, assessment)
+    query = {"a": "ahead", "b": "behind"}
+    body = client.get(f"/api/assessments/{assessment.uuid}/compare", params=query).json()
+    # Reference: Nadeau and Bengio's t is d̄ / 0 here, +inf, which JSON carries as null; p is 0 (a convention
+    # of compare_paired, stated in its docstring); the interval of a constant difference is the point 0.25.
+    assert (body["n"], body["mean_diff"], body["sd_diff"]) == (4, 0.25, 0.0)
+    assert body["corrected_t"] is None and body["corrected_p"] == 0.0
+    assert body["diff_low"] == body["diff_high"] == 0.25
+    page = client.get(f"/assessments/{assessment.uuid}/compare", params=query)
+    assert page.status_code == 200
+    assert "infinite (zero spread)" in page.text and "it excludes 0" in page.text
+    assert ">inf<" not in page.text
 
 
 def test_unknown_candidate_is_named_with_what_exists(client, repeated):

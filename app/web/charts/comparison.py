@@ -2,13 +2,18 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import plotly.graph_objects as go
 from scipy import stats
 
-from foldwise.stats.paired import probability_text
+from foldwise.stats.paired import PairedResult, probability_text
 from foldwise.web.charts.base import INK, MUTED, figure_json, styled
 from foldwise.web.metric_display import metric_display
+
+if TYPE_CHECKING:  # the page module imports this one
+    from foldwise.web.pages.assessments_compare import CandidatePairing
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
 
@@ -44,11 +49,11 @@ def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str,
     return figure_json(figure)
 
 
-def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colours: tuple[str, str],
+def posterior_figure(result: PairedResult, *, rope: float, names: tuple[str, str], colours: tuple[str, str],
                      metric: str) -> str:
     """Density of the Student posterior of the mean difference a − b (positive favours a), ROPE shaded,
     probabilities labelled."""
-    loc, scale, df = result["posterior_loc"], result["posterior_scale"], result["df"]
+    loc, scale, df = result.posterior_loc, result.posterior_scale, result.df
     figure = go.Figure()
     if scale > 0:
         low = min(stats.t.ppf(0.005, df, loc=loc, scale=scale), -1.5 * rope)
@@ -67,9 +72,9 @@ def posterior_figure(result: dict, *, rope: float, names: tuple[str, str], colou
     if scale <= 0:
         annotations.append({"x": loc, "y": 1, "text": "zero spread: the posterior is a point mass",
                             "showarrow": False, "yshift": 12})
-    labels = ((0.0, "left", f"P({_short(names[1])} better) = {_probability(result['bayes_b'])}"),
-              (0.5, "center", f"P(practically equivalent) = {_probability(result['bayes_rope'])}"),
-              (1.0, "right", f"P({_short(names[0])} better) = {_probability(result['bayes_a'])}"))
+    labels = ((0.0, "left", f"P({_short(names[1])} better) = {_probability(result.bayes_b)}"),
+              (0.5, "center", f"P(practically equivalent) = {_probability(result.bayes_rope)}"),
+              (1.0, "right", f"P({_short(names[0])} better) = {_probability(result.bayes_a)}"))
     annotations += [{"x": position, "xref": "paper", "y": 1.1, "yref": "paper", "xanchor": anchor, "text": text,
                      "showarrow": False} for position, anchor, text in labels]
     figure.update_layout(shapes=shapes, annotations=annotations)
@@ -104,17 +109,17 @@ def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: d
     return figure_json(figure)
 
 
-def paired_strips_figure(comparisons: list[dict], *, rope: float, metric: str) -> str:
+def paired_strips_figure(comparisons: list[CandidatePairing], *, rope: float, metric: str) -> str:
     """Per comparison of two assessments: each outer fold's difference x − y (positive favours x) as a point,
     the mean as a bar."""
     figure = go.Figure()
-    usable = [c for c in comparisons if c["result"] is not None]
+    usable = [c for c in comparisons if c.result is not None]
     for comparison in usable:
-        diffs = [fold["diff"] for fold in comparison["folds"] if fold["diff"] is not None]
-        figure.add_scatter(x=diffs, y=[comparison["label"]] * len(diffs), mode="markers",
+        diffs = [fold["diff"] for fold in comparison.folds if fold["diff"] is not None]
+        figure.add_scatter(x=diffs, y=[comparison.label] * len(diffs), mode="markers",
                            marker={"color": MUTED, "size": 9, "opacity": 0.8},
                            hovertemplate="fold difference %{x:.4f}<extra></extra>")
-        figure.add_scatter(x=[comparison["result"]["mean_diff"]], y=[comparison["label"]], mode="markers",
+        figure.add_scatter(x=[comparison.result.mean_diff], y=[comparison.label], mode="markers",
                            marker={"color": INK, "size": 20, "symbol": "line-ns", "line": {"width": 3}},
                            hovertemplate="mean difference %{x:.4f}<extra></extra>")
     shapes, annotations = _rope_band(rope, horizontal=False)

@@ -12,11 +12,12 @@ from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.definitions import headline_interval
-from foldwise.stats.paired import compare_paired
+from foldwise.stats.paired import PairedResult, compare_paired
 from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
 from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
+from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.forms import form_page, rope_from
@@ -43,6 +44,19 @@ class Side:
 
 
 @dataclass(frozen=True)
+class CandidatePairing:
+    """One candidate of x against its counterpart in y, paired outer fold by outer fold."""
+
+    kind: str  # "selection procedure", "best family" or "family"
+    label: str
+    x: str  # the candidate in x: a family, or the overall fold winners
+    y: str
+    result: PairedResult | None  # None when the pair cannot be compared; error says why
+    error: str | None
+    folds: list[dict]  # repeat, outer_fold, a (x's score), b (y's score), diff
+
+
+@dataclass(frozen=True)
 class AssessmentsCompareContext:
     assessments: list[dict]  # every stored assessment with its outer-folds fingerprint, for the two selects
     x_choice: str  # what the selects show: the requested uuids, else a pair whose outer folds match
@@ -54,7 +68,7 @@ class AssessmentsCompareContext:
     rope: float
     paired: bool
     reason: str  # why the folds cannot be paired; empty when they can
-    comparisons: list[dict]  # label, kind, x, y, result (compare_paired output or None), error, folds
+    comparisons: list[CandidatePairing]
     summaries: list[dict]  # candidate, kind, x and y: score_summary fields (None where absent)
     differences_figure: str | None
     intervals_figure: str | None
@@ -108,7 +122,7 @@ def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length
     return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,
             "paired": page.paired, "reason": page.reason or None,
             "fingerprints": {"x": page.x.fingerprint, "y": page.y.fingerprint},
-            "comparisons": page.comparisons, "summaries": page.summaries}
+            "comparisons": [context_json(pairing) for pairing in page.comparisons], "summaries": page.summaries}
 
 
 def _proposed(listing: list[dict], x: str | None, y: str | None) -> tuple[str, str]:
@@ -170,7 +184,7 @@ def _unpaired_reason(x: AssessmentRecord, y: AssessmentRecord) -> str:
             "not paired")
 
 
-def _comparisons(x: Side, y: Side, *, rope: float) -> list[dict]:
+def _comparisons(x: Side, y: Side, *, rope: float) -> list[CandidatePairing]:
     pairs = [("selection procedure", f"{SELECTION} of x vs {SELECTION} of y", SELECTION, SELECTION,
               x.overall, y.overall)]
     if x.best and y.best:
@@ -183,18 +197,16 @@ def _comparisons(x: Side, y: Side, *, rope: float) -> list[dict]:
 
 
 def _compare(kind: str, label: str, in_x: str, in_y: str, a: pd.Series, b: pd.Series, sizes: pd.DataFrame, *,
-             rope: float) -> dict:
-    row = {"kind": kind, "label": label, "x": in_x, "y": in_y, "result": None, "error": None,
-           "folds": fold_pairs(a, b)}
+             rope: float) -> CandidatePairing:
+    result, error = None, None
     try:
         result = compare_paired(a.to_numpy(), b.to_numpy(), n_train=sizes["n_train"].to_numpy(),
                                 n_test=sizes["n_test"].to_numpy(), rope=rope,
                                 names=(f"{in_x} (x)", f"{in_y} (y)"))
-    except ValueError as error:
-        row["error"] = str(error)
-        return row
-    row["result"] = {key: plain(value) for key, value in result.items()}
-    return row
+    except ValueError as refused:
+        error = str(refused)
+    return CandidatePairing(kind=kind, label=label, x=in_x, y=in_y, result=result, error=error,
+                            folds=fold_pairs(a, b))
 
 
 def _summaries(x: Side, y: Side) -> list[dict]:

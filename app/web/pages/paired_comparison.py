@@ -9,10 +9,11 @@ from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
-from foldwise.stats.paired import compare_paired
+from foldwise.stats.paired import PairedResult, compare_paired
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
+from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
@@ -20,7 +21,6 @@ from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import ROPE_TEXT, Rope
-from foldwise.web.serialise import plain
 
 router = APIRouter()
 
@@ -48,7 +48,7 @@ class PairedComparisonContext:
     families: list[PairedSide]
     configurations: list[PairedSide]  # empty unless every configuration was refit on every outer fold
     colours: dict[str, str]
-    result: dict  # compare_paired's output, JSON-safe
+    result: PairedResult
     folds: list[dict]  # repeat, outer_fold, a, b, diff
     differences_figure: str
     posterior_figure: str
@@ -83,7 +83,7 @@ def paired_comparison_context(reader: AssessmentReader, *, a: str | None, b: str
     return PairedComparisonContext(
         record=record, metric=metric, metrics=record.design.metrics, rope=rope, a=first, b=second,
         families=families, configurations=configurations, colours=colours,
-        result={key: plain(value) for key, value in result.items()}, folds=folds,
+        result=result, folds=folds,
         differences_figure=fold_differences_figure(folds, rope=rope, names=names, colours=pair_colours,
                                                    metric=metric),
         posterior_figure=posterior_figure(result, rope=rope, names=names, colours=pair_colours, metric=metric))
@@ -109,7 +109,7 @@ def paired_comparison_json(reader: ReaderDep, a: str | None = None, b: str | Non
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
             "a": page.a.value, "a_kind": page.a.kind, "a_label": page.a.label,
             "b": page.b.value, "b_kind": page.b.kind, "b_label": page.b.label,
-            "n_repeats": page.record.design.n_repeats, **page.result, "folds": page.folds}
+            "n_repeats": page.record.design.n_repeats, **context_json(page.result), "folds": page.folds}
 
 
 def _defaults(outer: pd.DataFrame, metric: str, families: list[str], n_folds: int, a: str | None,
