@@ -22,13 +22,19 @@ _Q_ALPHA_TABLE = {2: 1.960, 3: 2.343, 4: 2.569, 5: 2.728, 6: 2.850, 7: 2.949, 8:
 class RankingResult:
     """Friedman's test over the blocks, mean ranks (1 = best) and Nemenyi's critical difference."""
 
-    friedman_stat: float
+    friedman_stat: float  # NaN when the test cannot run (two families, or every block a complete tie)
     friedman_p: float
-    mean_ranks: dict
-    critical_difference: float
-    n_blocks: int
-    n_missing: int
-    note: str
+    mean_ranks: dict[str, float]  # family -> mean rank, in column order
+    critical_difference: float  # Nemenyi's CD by its formula, whether or not Friedman's test ran
+    n_blocks: int  # complete blocks used
+    n_missing: int  # blocks left out because a family's score was NaN
+    note: str  # why the test cannot run; empty when it ran
+
+    @property
+    def tested_critical_difference(self) -> float:
+        """The CD to compare mean ranks with: NaN when Friedman's test could not run, since Nemenyi's
+        comparisons follow only from it (Demšar, 2006), as ``ranking_verdict`` reads it."""
+        return math.nan if math.isnan(self.friedman_p) else self.critical_difference
 
 
 def rank_families(scores: pd.DataFrame) -> RankingResult:

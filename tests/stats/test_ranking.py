@@ -88,6 +88,7 @@ def test_worked_example_of_demsar_2006():
     assert result.friedman_stat == pytest.approx(stats.friedmanchisquare(*frame.to_numpy().T).statistic)
     # Published CD = 2.569 * sqrt(4 * 5 / (6 * 14)) = 1.25 (from memory).
     assert round(result.critical_difference, 2) == 1.25
+    assert result.tested_critical_difference == result.critical_difference  # Friedman's test ran
 
 
 def test_two_families_give_ranks_and_cd_but_no_friedman():
@@ -95,6 +96,7 @@ def test_two_families_give_ranks_and_cd_but_no_friedman():
     assert math.isnan(result.friedman_stat) and math.isnan(result.friedman_p)
     assert "needs three or more families, got 2" in result.note
     assert result.critical_difference == pytest.approx(1.960 * math.sqrt(2 * 3 / (6 * 10)))
+    assert math.isnan(result.tested_critical_difference)  # no Friedman test, no Nemenyi comparison
     assert sum(result.mean_ranks.values()) == pytest.approx(3.0)  # ranks 1 and 2 in every block
 
 

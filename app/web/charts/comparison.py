@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -84,9 +85,9 @@ def posterior_figure(result: PairedResult, *, rope: float, names: tuple[str, str
     return figure_json(figure)
 
 
-def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: dict[str, str]) -> str:
+def ranks_figure(mean_ranks: dict, critical_difference: float, colours: dict[str, str]) -> str:
     """Mean ranks on one axis (1 = best), the CD drawn as a bar above and as a band from the best rank; no CD
-    (None) when Friedman's test could not run, since Nemenyi's comparisons follow only from it."""
+    (NaN) when Friedman's test could not run, since Nemenyi's comparisons follow only from it."""
     order = sorted(mean_ranks, key=mean_ranks.get)
     best, k = mean_ranks[order[0]], len(order)
     figure = go.Figure(go.Scatter(
@@ -94,7 +95,8 @@ def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: d
         marker={"size": 14, "color": [colours[family] for family in order]},
         text=[f"{mean_ranks[family]:.2f}" for family in order], textposition="middle right",
         hovertemplate="%{y}: mean rank %{x:.3f}<extra></extra>"))
-    if critical_difference is not None:
+    drawn = math.isfinite(critical_difference)
+    if drawn:
         figure.add_vrect(x0=best, x1=best + critical_difference, fillcolor=_BAND, line_width=0, layer="below")
         for x0, x1 in ((1, 1 + critical_difference), (1, 1), (1 + critical_difference, 1 + critical_difference)):
             bar = x0 != x1
@@ -102,7 +104,7 @@ def ranks_figure(mean_ranks: dict, critical_difference: float | None, colours: d
                              y1=1.06 if bar else 1.09, line={"color": INK, "width": 3 if bar else 2})
         figure.add_annotation(x=1 + critical_difference, xref="x", y=1.06, yref="paper", xanchor="left",
                               text=f"  CD = {critical_difference:.2f}", showarrow=False)
-    figure.update_xaxes(range=[0.6, max(k, 1 + (critical_difference or 0)) + 0.5], dtick=1)
+    figure.update_xaxes(range=[0.6, max(k, 1 + (critical_difference if drawn else 0)) + 0.5], dtick=1)
     figure.update_yaxes(type="category", autorange="reversed")
     styled(figure, x_title="mean rank over the outer folds (1 = best)", height=120 + 48 * k)
     figure.update_layout(margin={"t": 50, "l": 120})

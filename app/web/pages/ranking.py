@@ -8,10 +8,11 @@ from fastapi import APIRouter, HTTPException, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
-from foldwise.stats.ranking import rank_families, ranking_verdict
+from foldwise.stats.ranking import RankingResult, rank_families, ranking_verdict
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.answers import Ranking
 from foldwise.web.charts.comparison import ranks_figure
+from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses
 from foldwise.web.fold_scores import family_fold_scores
 from foldwise.web.forms import form_page
@@ -23,15 +24,26 @@ router = APIRouter()
 
 
 @dataclass(frozen=True)
+class RankedFamily:
+    """One family's mean rank beside the summary of its fold winners' outer scores."""
+
+    family: str
+    mean_rank: float
+    mean: float  # NaN when no fold winner of the family has an outer score
+    sd: float
+    n: int  # outer folds scored
+
+
+@dataclass(frozen=True)
 class RankingContext:
     record: AssessmentRecord
     metric: str
     metrics: list[str]
     colours: dict[str, str]
-    result: dict  # RankingResult's fields, JSON-safe; critical_difference None when Friedman's test cannot run
+    result: RankingResult
     verdict: str  # the ranking in one sentence
-    rows: list[dict]  # per family, best mean rank first: family, mean_rank, and its outer-score summary
-    blocks: list[dict]  # per outer fold: repeat, outer_fold and each family's fold winner's outer score
+    rows: list[RankedFamily]  # best mean rank first
+    blocks: list[dict]  # one table row per outer fold: repeat, outer_fold, then one column per family
     ranks_figure: str
 
 
@@ -45,21 +57,17 @@ def ranking_context(reader: AssessmentReader, *, metric: str | None) -> RankingC
         ranking = rank_families(scores)
     except ValueError as error:
         raise HTTPException(422, f"cannot rank the families {families} on {metric!r}: {error}") from None
-    table = frames.family_summary(outer, metric, families=record.family_names, n_folds=record.n_folds)
-    summary = {row["family"]: row for row in records(table)}
-    rows = [{"family": family, "mean_rank": rank, **{key: summary.get(family, {}).get(key)
-                                                     for key in ("mean", "sd", "n")}}
+    # Every family has a row, NaN where none of its fold winners has a score (definitions.family_summary).
+    summary = frames.family_summary(outer, metric, families=record.family_names,
+                                    n_folds=record.n_folds).set_index("family")
+    rows = [RankedFamily(family=family, mean_rank=rank, mean=float(summary.at[family, "mean"]),
+                         sd=float(summary.at[family, "sd"]), n=int(summary.at[family, "n"]))
             for family, rank in sorted(ranking.mean_ranks.items(), key=lambda item: item[1])]
     colours = family_colours(families)
-    result = {key: plain(getattr(ranking, key)) for key in
-              ("friedman_stat", "friedman_p", "critical_difference", "n_blocks", "n_missing", "note")}
-    if result["friedman_p"] is None:  # Nemenyi's comparisons follow Friedman's test: no test, no CD
-        result["critical_difference"] = None
     return RankingContext(
-        record=record, metric=metric, metrics=record.design.metrics, colours=colours,
-        result=result | {"mean_ranks": ranking.mean_ranks}, verdict=ranking_verdict(ranking),
-        rows=rows, blocks=records(scores.reset_index()),
-        ranks_figure=ranks_figure(ranking.mean_ranks, result["critical_difference"], colours))
+        record=record, metric=metric, metrics=record.design.metrics, colours=colours, result=ranking,
+        verdict=ranking_verdict(ranking), rows=rows, blocks=records(scores.reset_index()),
+        ranks_figure=ranks_figure(ranking.mean_ranks, ranking.tested_critical_difference, colours))
 
 
 @router.get("/assessments/{uuid}/ranking", name="ranking", response_class=HTMLResponse,
@@ -74,5 +82,9 @@ def ranking(request: Request, reader: ReaderDep, metric: str | None = None):
 def ranking_json(reader: ReaderDep, metric: str | None = None):
     """Friedman's test over the outer folds, mean ranks (1 = best) and Nemenyi's critical difference."""
     page = ranking_context(reader, metric=metric)
-    return {"uuid": page.record.uuid, "metric": page.metric, **page.result, "verdict": page.verdict,
-            "families": page.rows, "blocks": page.blocks}
+    result = page.result
+    return {"uuid": page.record.uuid, "metric": page.metric, "friedman_stat": plain(result.friedman_stat),
+            "friedman_p": plain(result.friedman_p), "critical_difference": plain(result.tested_critical_difference),
+            "n_blocks": result.n_blocks, "n_missing": result.n_missing, "note": result.note,
+            "mean_ranks": result.mean_ranks, "verdict": page.verdict,
+            "families": [context_json(row) for row in page.rows], "blocks": page.blocks}
