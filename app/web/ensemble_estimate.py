@@ -85,8 +85,8 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
         comparison_note = None
     except ValueError as error:
         comparison, comparison_note = None, f"no paired comparison: {error}"
-    folds = [{"repeat": pair["repeat"], "outer_fold": pair["outer_fold"], "ensemble": pair["a"],
-              "selection": pair["b"], "diff": pair["diff"], "best_family": best_score}
+    folds = [{"repeat": pair.repeat, "outer_fold": pair.outer_fold, "ensemble": plain(pair.a),
+              "selection": plain(pair.b), "diff": plain(pair.diff), "best_family": best_score}
              for pair, best_score in zip(fold_pairs(mine, selection), _numbers(best_scores), strict=True)]
     by_metric = scored.scores.groupby("metric", sort=False)["score"]
     return EnsembleResult(

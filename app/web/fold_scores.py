@@ -6,7 +6,7 @@ failed, or its family had no winner) holds NaN, which the statistics drop and co
 
 from __future__ import annotations
 
-import math
+from dataclasses import dataclass
 
 import pandas as pd
 
@@ -44,15 +44,23 @@ def overall_fold_scores(outer: pd.DataFrame, metric: str, *, folds: pd.Index | N
     return scores.reindex(fold_sizes(outer).index if folds is None else folds).astype(float)
 
 
-def fold_pairs(a: pd.Series, b: pd.Series) -> list[dict]:
-    """Per outer fold: repeat, outer_fold, the two scores and their difference ``a - b`` (None if missing)."""
-    rows = []
-    for (repeat, outer_fold), first, second in zip(a.index, a.to_numpy(float), b.to_numpy(float),
-                                                   strict=True):
-        missing = math.isnan(first) or math.isnan(second)
-        rows.append({"repeat": int(repeat), "outer_fold": int(outer_fold), "a": _number(first),
-                     "b": _number(second), "diff": None if missing else float(first - second)})
-    return rows
+@dataclass(frozen=True)
+class FoldPair:
+    """Two candidates' outer scores on one outer fold and their difference (NaN where a score is missing)."""
+
+    repeat: int
+    outer_fold: int
+    a: float
+    b: float
+    diff: float  # a − b on scikit-learn's scores: positive favours a
+
+
+def fold_pairs(a: pd.Series, b: pd.Series) -> list[FoldPair]:
+    """Per outer fold, in the order of ``a``'s (repeat, outer_fold) index: the two scores and ``a - b``."""
+    return [FoldPair(repeat=int(repeat), outer_fold=int(outer_fold), a=float(first), b=float(second),
+                     diff=float(first - second))
+            for (repeat, outer_fold), first, second in zip(a.index, a.to_numpy(float), b.to_numpy(float),
+                                                           strict=True)]
 
 
 def _table(rows: pd.DataFrame, column: str, wanted: list[str], folds: pd.Index) -> pd.DataFrame:
@@ -60,7 +68,3 @@ def _table(rows: pd.DataFrame, column: str, wanted: list[str], folds: pd.Index) 
     table = table.reindex(index=folds, columns=wanted).astype(float)
     table.columns.name = None
     return table
-
-
-def _number(value: float) -> float | None:
-    return None if math.isnan(value) else float(value)

@@ -14,28 +14,29 @@ from foldwise.web.charts.base import INK, MUTED, figure_json, styled
 from foldwise.web.metric_display import metric_display
 
 if TYPE_CHECKING:  # the page module imports this one
+    from foldwise.web.fold_scores import FoldPair
     from foldwise.web.pages.assessments_compare import CandidatePairing
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
 
 
-def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str, str],
+def fold_differences_figure(folds: list[FoldPair], *, rope: float, names: tuple[str, str],
                             colours: tuple[str, str], metric: str) -> str:
     """Bars of a − b per outer fold (positive favours a), grouped by repeat, with the zero line and the ±ROPE band."""
     display = metric_display(metric)
     difference = display.difference(_short(names[0]), _short(names[1]))
     labels = [_fold_label(fold) for fold in folds]
-    present = [fold for fold in folds if fold["diff"] is not None]
+    present = [fold for fold in folds if not math.isnan(fold.diff)]
     against = colours[1] if colours[1] != colours[0] else MUTED
     figure = go.Figure(go.Bar(
-        x=[_fold_label(fold) for fold in present], y=[fold["diff"] for fold in present],
-        marker_color=[colours[0] if fold["diff"] >= 0 else against for fold in present],
-        customdata=[[fold["repeat"], fold["outer_fold"], display.value(fold["a"]), display.value(fold["b"])]
+        x=[_fold_label(fold) for fold in present], y=[fold.diff for fold in present],
+        marker_color=[colours[0] if fold.diff >= 0 else against for fold in present],
+        customdata=[[fold.repeat, fold.outer_fold, display.value(fold.a), display.value(fold.b)]
                     for fold in present],
         hovertemplate=(f"repeat %{{customdata[0]}}, outer fold %{{customdata[1]}}<br>{_short(names[0])}: "
                        f"{display.name} %{{customdata[2]:.4f}}<br>{_short(names[1])}: {display.name} "
                        f"%{{customdata[3]:.4f}}<br>{difference} = %{{y:.4f}}<extra></extra>")))
-    missing = [fold for fold in folds if fold["diff"] is None]
+    missing = [fold for fold in folds if math.isnan(fold.diff)]
     if missing:
         figure.add_scatter(x=[_fold_label(fold) for fold in missing], y=[0] * len(missing), mode="markers",
                            marker={"symbol": "x-thin-open", "size": 12, "color": MUTED, "line": {"width": 2}},
@@ -43,7 +44,7 @@ def fold_differences_figure(folds: list[dict], *, rope: float, names: tuple[str,
     shapes, annotations = _rope_band(rope, horizontal=True)
     shapes.append(_line("y", 0, {"color": INK, "width": 1}))
     shapes += [_line("x", position - 0.5, {"color": MUTED, "dash": "dot", "width": 1})
-               for position in range(1, len(folds)) if folds[position]["repeat"] != folds[position - 1]["repeat"]]
+               for position in range(1, len(folds)) if folds[position].repeat != folds[position - 1].repeat]
     figure.update_layout(shapes=shapes, annotations=annotations)
     figure.update_xaxes(type="category", categoryorder="array", categoryarray=labels)
     styled(figure, x_title="outer fold (r = repeat, f = fold)", y_title=difference, height=340)
@@ -117,7 +118,7 @@ def paired_strips_figure(comparisons: list[CandidatePairing], *, rope: float, me
     figure = go.Figure()
     usable = [c for c in comparisons if c.result is not None]
     for comparison in usable:
-        diffs = [fold["diff"] for fold in comparison.folds if fold["diff"] is not None]
+        diffs = [fold.diff for fold in comparison.folds if not math.isnan(fold.diff)]
         figure.add_scatter(x=diffs, y=[comparison.label] * len(diffs), mode="markers",
                            marker={"color": MUTED, "size": 9, "opacity": 0.8},
                            hovertemplate="fold difference %{x:.4f}<extra></extra>")
@@ -180,8 +181,8 @@ def _line(axis: str, at: float, line: dict) -> dict:
             f"{across}ref": "paper", f"{across}0": 0, f"{across}1": 1}
 
 
-def _fold_label(fold: dict) -> str:
-    return f"r{fold['repeat']}·f{fold['outer_fold']}"
+def _fold_label(fold: FoldPair) -> str:
+    return f"r{fold.repeat}·f{fold.outer_fold}"
 
 
 def _short(name: str, limit: int = 28) -> str:

@@ -19,7 +19,7 @@ from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
 from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses, refusal
-from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
+from foldwise.web.fold_scores import FoldPair, family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
@@ -53,7 +53,7 @@ class CandidatePairing:
     y: str
     result: PairedResult | None  # None when the pair cannot be compared; error says why
     error: str | None
-    folds: list[dict]  # repeat, outer_fold, a (x's score), b (y's score), diff
+    folds: list[FoldPair]  # a is x's score, b is y's
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ from foldwise.web.answers import PairedComparison
 from foldwise.web.charts.comparison import fold_differences_figure, posterior_figure
 from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses, refusal
-from foldwise.web.fold_scores import config_fold_scores, family_fold_scores, fold_pairs
+from foldwise.web.fold_scores import FoldPair, config_fold_scores, family_fold_scores, fold_pairs
 from foldwise.web.formatting import params_text
 from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import ReaderDep, metric_or_422
@@ -49,7 +49,7 @@ class PairedComparisonContext:
     configurations: list[PairedSide]  # empty unless every configuration was refit on every outer fold
     colours: dict[str, str]
     result: PairedResult
-    folds: list[dict]  # repeat, outer_fold, a, b, diff
+    folds: list[FoldPair]
     differences_figure: str
     posterior_figure: str
 
@@ -109,7 +109,8 @@ def paired_comparison_json(reader: ReaderDep, a: str | None = None, b: str | Non
     return {"uuid": page.record.uuid, "metric": page.metric, "rope": page.rope,
             "a": page.a.value, "a_kind": page.a.kind, "a_label": page.a.label,
             "b": page.b.value, "b_kind": page.b.kind, "b_label": page.b.label,
-            "n_repeats": page.record.design.n_repeats, **context_json(page.result), "folds": page.folds}
+            "n_repeats": page.record.design.n_repeats, **context_json(page.result),
+            "folds": [context_json(fold) for fold in page.folds]}
 
 
 def _defaults(outer: pd.DataFrame, metric: str, families: list[str], n_folds: int, a: str | None,
