@@ -6,8 +6,10 @@ script reads is what a person sees.
 
 from __future__ import annotations
 
+import math
 from collections import Counter
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -19,9 +21,82 @@ from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.fold_scores import family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.lookup import metric_or_422
-from foldwise.web.serialise import plain
 
 _LISTED = 12  # configuration ids named in an error message before "and N more"
+
+
+@dataclass(frozen=True)
+class MemberDetail:
+    """One member: its family, parameters and in how many outer folds it won its family, and overall."""
+
+    config: str
+    family: str
+    params: dict[str, Any]
+    n_family_wins: int
+    n_overall_wins: int
+
+
+@dataclass(frozen=True)
+class FoldScore:
+    repeat: int
+    outer_fold: int
+    score: float  # NaN where there is none (a member without a prediction there, a failed fit)
+
+
+@dataclass(frozen=True)
+class SelectionScores:
+    """The selection procedure's outer scores (the overall fold winners') and their summary."""
+
+    fold_scores: list[FoldScore]
+    mean: float  # NaN when no outer fold has a score
+    sd: float  # NaN with fewer than two scores
+    n: int  # outer folds scored
+    n_missing: int
+
+
+@dataclass(frozen=True)
+class BestFamilyScores:
+    """The best single family's fold winners' outer scores and their summary."""
+
+    family: str
+    fold_scores: list[FoldScore]
+    mean: float
+    sd: float
+    n: int
+    n_missing: int
+
+
+@dataclass(frozen=True)
+class EnsembleFold:
+    """One outer fold: the ensemble beside the selection procedure and the best family (NaN where missing)."""
+
+    repeat: int
+    outer_fold: int
+    ensemble: float
+    selection: float
+    diff: float  # ensemble − selection, on scikit-learn's scores
+    best_family: float
+
+
+@dataclass(frozen=True)
+class MetricEstimate:
+    """The ensemble's summary on one recorded metric."""
+
+    metric: str
+    available: bool = field(default=True, init=False)
+    mean: float
+    sd: float
+    n: int
+    n_missing: int
+
+
+@dataclass(frozen=True)
+class MetricUnavailable:
+    """A recorded metric the ensemble's predictions cannot be scored on, and why."""
+
+    metric: str
+    available: bool = field(default=False, init=False)
+    reason: str
 
 
 @dataclass(frozen=True)
@@ -31,25 +106,25 @@ class EnsembleResult:
 
     uuid: str
     members: list[str]  # configuration ids, as given
-    member_details: list[dict]  # config, family, params, n_family_wins, n_overall_wins
+    member_details: list[MemberDetail]
     rule: str  # the rule fixed in advance the members follow, or "hand-picked"
     caution: str
     voting: str  # "soft", "hard" or "mean"
     voting_text: str
     metric: str
     metric_note: str | None  # why the estimate is not on the selection metric, if it is not
-    fold_scores: list[dict]  # repeat, outer_fold, score (None where a member had no prediction)
-    mean: float | None
-    sd: float | None
+    fold_scores: list[FoldScore]
+    mean: float  # NaN when no outer fold could be scored
+    sd: float  # NaN with fewer than two outer folds scored
     n: int  # outer folds scored
     n_missing: int
-    selection: dict  # fold_scores and summary of the overall fold winners
-    best_family: dict  # family, fold_scores and summary of the best family's fold winners
-    folds: list[dict]  # repeat, outer_fold, ensemble, selection, diff, best_family
+    selection: SelectionScores  # the overall fold winners
+    best_family: BestFamilyScores
+    folds: list[EnsembleFold]
     comparison: PairedResult | None  # the ensemble (a) against the selection procedure (b); None when it cannot be made
     comparison_note: str | None
     rope: float
-    metrics: list[dict]  # per recorded metric: its summary, or why it cannot be computed
+    metrics: list[MetricEstimate | MetricUnavailable]  # every recorded metric, in the design's order
 
 
 def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: str | None,
@@ -85,20 +160,22 @@ def ensemble_estimate(reader: AssessmentReader, members: list[str], *, metric: s
         comparison_note = None
     except ValueError as error:
         comparison, comparison_note = None, f"no paired comparison: {error}"
-    folds = [{"repeat": pair.repeat, "outer_fold": pair.outer_fold, "ensemble": plain(pair.a),
-              "selection": plain(pair.b), "diff": plain(pair.diff), "best_family": best_score}
-             for pair, best_score in zip(fold_pairs(mine, selection), _numbers(best_scores), strict=True)]
+    folds = [EnsembleFold(repeat=pair.repeat, outer_fold=pair.outer_fold, ensemble=pair.a, selection=pair.b,
+                          diff=pair.diff, best_family=float(best_score))
+             for pair, best_score in zip(fold_pairs(mine, selection), best_scores.to_numpy(dtype=float),
+                                         strict=True)]
     by_metric = scored.scores.groupby("metric", sort=False)["score"]
+    metrics = [MetricEstimate(metric=name, **_summary(scores)) for name, scores in by_metric]
     return EnsembleResult(
         uuid=record.uuid, members=list(members), member_details=_details(record, outer, members),
         rule=_rule(record, outer, members), caution=ESTIMATE_CAUTION, voting=scored.voting,
         voting_text=VOTING_TEXT[scored.voting], metric=metric, metric_note=metric_note,
         fold_scores=_fold_scores(mine), **_summary(mine),
-        selection={"fold_scores": _fold_scores(selection), **_summary(selection)},
-        best_family={"family": best, "fold_scores": _fold_scores(best_scores), **_summary(best_scores)},
+        selection=SelectionScores(fold_scores=_fold_scores(selection), **_summary(selection)),
+        best_family=BestFamilyScores(family=best, fold_scores=_fold_scores(best_scores), **_summary(best_scores)),
         folds=folds, comparison=comparison, comparison_note=comparison_note, rope=rope,
-        metrics=[{"metric": name, "available": True, **_summary(scores)} for name, scores in by_metric]
-        + [{"metric": name, "available": False, "reason": reason} for name, reason in scored.unavailable.items()])
+        metrics=[*metrics, *(MetricUnavailable(metric=name, reason=reason)
+                             for name, reason in scored.unavailable.items())])
 
 
 def _check_members(record: AssessmentRecord, members: list[str]) -> None:
@@ -150,15 +227,15 @@ def _metric(metrics: list[str], unavailable: dict[str, str], asked: str | None) 
     return metrics[0], None
 
 
-def _details(record: AssessmentRecord, outer: pd.DataFrame, members: list[str]) -> list[dict]:
+def _details(record: AssessmentRecord, outer: pd.DataFrame, members: list[str]) -> list[MemberDetail]:
     """Per member: its family, parameters and in how many outer folds it won its family, and overall."""
     rows = outer.drop_duplicates(["repeat", "outer_fold", "config"])
     family_wins = rows[rows["family_winner"]]["config"].value_counts()
     overall_wins = rows[rows["overall_winner"]]["config"].value_counts()
     configs = {config.id: config for config in record.configurations}
-    return [{"config": member, "family": configs[member].family, "params": configs[member].params,
-             "n_family_wins": int(family_wins.get(member, 0)),
-             "n_overall_wins": int(overall_wins.get(member, 0))}
+    return [MemberDetail(config=member, family=configs[member].family, params=configs[member].params,
+                         n_family_wins=int(family_wins.get(member, 0)),
+                         n_overall_wins=int(overall_wins.get(member, 0)))
             for member in members]
 
 
@@ -173,19 +250,15 @@ def _rule(record: AssessmentRecord, outer: pd.DataFrame, members: list[str]) -> 
     return "hand-picked"
 
 
-def _summary(scores: pd.Series) -> dict:
+def _summary(scores: pd.Series) -> dict[str, Any]:
+    """mean, sd, n and n_missing of the scores: the fields every summary above shares."""
     values = scores.to_numpy(dtype=float)
     if np.isnan(values).all():
-        return {"mean": None, "sd": None, "n": 0, "n_missing": int(values.size)}
+        return {"mean": math.nan, "sd": math.nan, "n": 0, "n_missing": int(values.size)}
     summary = score_summary(values)
-    return {"mean": plain(summary.mean), "sd": plain(summary.sd), "n": summary.n,
-            "n_missing": summary.n_missing}
+    return {"mean": summary.mean, "sd": summary.sd, "n": summary.n, "n_missing": summary.n_missing}
 
 
-def _fold_scores(scores: pd.Series) -> list[dict]:
-    return [{"repeat": int(repeat), "outer_fold": int(outer_fold), "score": plain(score)}
+def _fold_scores(scores: pd.Series) -> list[FoldScore]:
+    return [FoldScore(repeat=int(repeat), outer_fold=int(outer_fold), score=float(score))
             for (repeat, outer_fold), score in scores.items()]
-
-
-def _numbers(scores: pd.Series) -> list[float | None]:
-    return [plain(score) for score in scores.to_numpy(dtype=float)]

@@ -293,3 +293,40 @@ def test_the_ensemble_page_shows_the_estimate_with_its_caution_beside_it(client,
     assert "all overall fold winners" in html and "/vendor/plotly.min.js" in html
     assert client.get("/ensembles/00000000-0000-4000-8000-000000000000").status_code == 404
     assert client.get("/ensembles/not-an-id").status_code == 404
+
+
+def _one_fold_predicted():
+    """Hand-recorded labels, made up for this check: the member 'left' has a prediction on outer fold 0 only,
+    so its ensemble is scored on one of two outer folds; hard voting cannot give roc_auc."""
+    recorder = foldwise.Recorder("one scored fold", task="classification", metrics=["roc_auc", "accuracy"],
+                                 n_samples=20, classes=[0, 1], prediction_kind="predict")
+    y_true = np.array([0, 1, 0, 1, 1, 0, 1, 0, 0, 1])
+    for fold in range(2):
+        recorder.outer_fold(0, fold, n_train=10, test=np.arange(fold * 10, fold * 10 + 10), y_true=y_true)
+        for family, score, predictions in (("left", 0.8, y_true if fold == 0 else None), ("right", 0.7, 1 - y_true)):
+            for inner_fold in range(2):
+                recorder.inner(0, fold, inner_fold, family=family, params={},
+                               scores={"roc_auc": score, "accuracy": score})
+            recorder.outer(0, fold, family=family, params={}, scores={"roc_auc": score, "accuracy": score},
+                           predictions=predictions)
+    return recorder.finish(), y_true
+
+
+def test_an_ensemble_scored_on_one_outer_fold_shows_no_spread_and_says_what_is_missing(client):
+    assessment, y_true = _one_fold_predicted()
+    uuid = push(client, assessment)
+    body = preview(client, uuid, ["left:{}"]).json()
+    # Reference: sklearn's accuracy scorer on the one fold with a prediction (the labels themselves).
+    assert body["mean"] == get_scorer("accuracy")._score_func(y_true, y_true) == 1.0
+    assert (body["sd"], body["n"], body["n_missing"]) == (None, 1, 1)  # one score: no sd, null in JSON
+    assert [fold["score"] for fold in body["fold_scores"]] == [1.0, None]
+    assert [(fold["ensemble"], fold["diff"]) for fold in body["folds"]][1] == (None, None)
+    assert body["comparison"] is None and "needs at least 2 paired outer folds" in body["comparison_note"]
+    assert body["metrics"][1] == {"metric": "roc_auc", "available": False, "reason": body["metrics"][1]["reason"]}
+    assert "needs class probabilities" in body["metrics"][1]["reason"]
+    saved = client.post(f"/api/assessments/{uuid}/ensembles", json={"name": "left alone", "members": ["left:{}"]})
+    assert saved.status_code == 201 and saved.json()["estimate_sd"] is None
+    html = client.get(f"/ensembles/{saved.json()['id']}").text
+    estimate = html[html.index('id="ensemble-estimate"'):]
+    assert estimate[:estimate.index("</p>")].endswith("1.000")  # no "± nan" after the mean
+    assert "needs class probabilities" in html and "nan" not in estimate[:estimate.index("</p>")]

@@ -83,7 +83,7 @@ def save(request: Request, uuid: str, body: SaveRequest):
         try:
             ensemble = reader.save_ensemble(name=body.name, note=body.note, members=body.members,
                                             voting=estimate.voting, metric=estimate.metric,
-                                            estimate_mean=estimate.mean, estimate_sd=estimate.sd)
+                                            estimate_mean=plain(estimate.mean), estimate_sd=plain(estimate.sd))
         except ValueError as error:
             raise HTTPException(422, str(error)) from None
     return JSONResponse(_ensemble_json(request, ensemble), status_code=201)
