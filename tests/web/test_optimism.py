@@ -127,3 +127,42 @@ def test_without_refit_all_agreement_is_replaced_by_a_reason(client, winners_onl
     assert body["summaries"][0]["n"] == 3  # optimism itself needs only the winners' outer scores
     page = client.get(f"/assessments/{winners_only.uuid}/optimism").text
     assert 'id="agreement-message"' in page and 'id="rank-agreement"' not in page
+
+
+def _edges():
+    """Hand-recorded scores, made up for this check: family 'dead' fails every outer fit, and on outer fold 1
+    the second configuration of 'a' and of 'b' fails too, leaving 2 configurations with both scores there."""
+    recorder = foldwise.Recorder("optimism edges", task="classification", metrics=["accuracy"], n_samples=30)
+    for fold in range(3):
+        recorder.outer_fold(0, fold, n_train=20, test=np.arange(fold * 10, fold * 10 + 10))
+        for family, configs in (("a", [1, 2]), ("b", [1, 2]), ("dead", [1])):
+            for c in configs:
+                for inner_fold in range(2):
+                    recorder.inner(0, fold, inner_fold, family=family, params={"c": c},
+                                   scores={"accuracy": 0.6 + 0.05 * c + 0.01 * inner_fold + 0.02 * fold})
+                fitted = family != "dead" and not (fold == 1 and c == 2)
+                recorder.outer(0, fold, family=family, params={"c": c}, error=None if fitted else "made up",
+                               scores={"accuracy": 0.55 + 0.07 * c - 0.01 * fold if fitted else None})
+    return recorder.finish()
+
+
+def test_undefined_optimism_and_agreement_are_null_and_counted_not_dropped(client):
+    assessment = _edges()
+    _push(client, assessment)
+    body = client.get(f"/api/assessments/{assessment.uuid}/optimism", params={"level": "family"}).json()
+    dead = next(row for row in body["summaries"] if row["family"] == "dead")
+    assert (dead["n"], dead["n_missing"], dead["mean"], dead["ci_low"]) == (0, 3, None, None)
+    # Reference: the fold winners' optimism by a plain loop over this test's own frames, with numpy.
+    optimism = [inner - outer for family, inner, outer in _pairs(assessment, "accuracy", "family_winner")
+                if family == "a" and not np.isnan(outer)]
+    served = next(row for row in body["summaries"] if row["family"] == "a")
+    assert (served["n"], served["n_missing"]) == (len(optimism), 3 - len(optimism))
+    assert served["mean"] == pytest.approx(np.mean(optimism), abs=1e-12)
+    short = [fold for fold in body["agreement"] if fold["spearman_rho"] is None]
+    assert [(fold["outer_fold"], fold["n"], fold["n_missing"]) for fold in short] == [(1, 2, 3)]
+    assert "at least 3" in short[0]["note"]
+    assert body["agreement_mean"]["spearman_rho"]["n"] == 2 and body["agreement_mean"]["spearman_rho"]["n_missing"] == 1
+    page = client.get(f"/assessments/{assessment.uuid}/optimism", params={"level": "family"}).text
+    dead_row = page[page.index('data-family="dead"'):]
+    dead_row = dead_row[:dead_row.index("</tr>")]
+    assert "–" in dead_row and "– – –" not in dead_row and "nan" not in dead_row and "flatter" not in dead_row

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import asdict, dataclass
 from typing import Literal
 
@@ -11,7 +12,7 @@ from fastapi.responses import HTMLResponse
 
 from foldwise import frames
 from foldwise.stats.agreement import rank_agreement
-from foldwise.stats.summaries import optimism_summary, score_summary
+from foldwise.stats.summaries import ScoreSummary, optimism_summary, score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.optimism import optimism_figure
 from foldwise.web.context_json import context_json, context_model
@@ -19,7 +20,7 @@ from foldwise.web.errors import error_responses
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours, family_symbols
-from foldwise.web.serialise import plain, records
+from foldwise.web.serialise import records
 
 router = APIRouter()
 
@@ -27,8 +28,48 @@ AGREEMENT_NEEDS_REFIT_ALL = ("Rank agreement needs every configuration's outer s
                              "every configuration is refit on each outer fold (refit_all); this assessment "
                              "refit the family winners only.")
 AGREEMENT_NEEDS_THREE = "Rank agreement needs at least 3 configurations; this assessment has {n}."
-_EMPTY = {"n": 0, "n_missing": 0, "mean": None, "sd": None, "min": None, "max": None, "ci_low": None,
-          "ci_high": None}
+
+
+@dataclass(frozen=True)
+class OptimismRow:
+    """The optimism (inner mean − outer score) of one set of fold winners over the outer folds: its summary
+    (optimism_summary's fields, NaN where undefined)."""
+
+    label: str
+    family: str | None  # None for the overall fold winners
+    n: int
+    n_missing: int
+    mean: float
+    sd: float
+    min: float
+    max: float
+    ci_low: float
+    ci_high: float
+
+
+@dataclass(frozen=True)
+class FoldAgreement:
+    """How well the inner ranks of every configuration carry over to the outer scores on one outer fold
+    (rank_agreement's fields; NaN coefficients and the reason in ``note`` when it cannot be computed)."""
+
+    repeat: int
+    outer_fold: int
+    spearman_rho: float
+    spearman_p: float
+    kendall_tau: float
+    kendall_p: float
+    n: int
+    n_missing: int
+    note: str
+
+
+@dataclass(frozen=True)
+class CoefficientMean:
+    """A rank coefficient's mean over the outer folds where it is defined, and over how many."""
+
+    mean: float
+    n: int
+    n_missing: int
 
 
 @dataclass(frozen=True)
@@ -40,9 +81,9 @@ class OptimismContext:
     families: list[str]
     colours: dict[str, str]
     points: list[dict]  # frames.winners_frame rows: inner_mean, outer_score, optimism per outer fold
-    summaries: list[dict]  # {"label", "family"} + optimism_summary fields; the overall winners first
-    agreement: list[dict]  # per outer fold: repeat, outer_fold + rank_agreement fields
-    agreement_mean: dict  # {"spearman_rho": {"mean", "n", "n_missing"}, "kendall_tau": ...} or {}
+    summaries: list[OptimismRow]  # the overall winners first
+    agreement: list[FoldAgreement]  # one per outer fold, empty when agreement_message says why
+    agreement_mean: dict[str, CoefficientMean]  # "spearman_rho", "kendall_tau": only those defined on some fold
     agreement_message: str  # why no agreement is shown, or ""
     optimism_figure: str
 
@@ -53,10 +94,10 @@ def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str
     overall = reader.winners(kind="overall", metric=metric)
     per_family = reader.winners(kind="family", metric=metric)
     families = [family.name for family in record.families]
-    summaries = [{"label": "overall winner", "family": None, **_optimism(overall)}]
+    summaries = [OptimismRow("overall winner", None, **asdict(_optimism(overall)))]
     if level == "family":
-        summaries += [{"label": family, "family": family,
-                       **_optimism(per_family[per_family["family"] == family])} for family in families]
+        summaries += [OptimismRow(family, family, **asdict(_optimism(per_family[per_family["family"] == family])))
+                      for family in families]
     agreement, message = [], ""
     if not record.design.refit_all:
         message = AGREEMENT_NEEDS_REFIT_ALL
@@ -77,35 +118,34 @@ def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str
         optimism_figure=optimism_figure(points, colours, family_symbols(families), metric=metric))
 
 
-def _optimism(winners: pd.DataFrame) -> dict:
+def _optimism(winners: pd.DataFrame) -> ScoreSummary:
     complete = winners["inner_mean"].notna() & winners["outer_score"].notna()
     if not complete.any():
-        return {**_EMPTY, "n_missing": len(winners)}
-    summary = optimism_summary(winners["inner_mean"].to_numpy(dtype=float),
-                               winners["outer_score"].to_numpy(dtype=float))
-    return {name: plain(value) for name, value in asdict(summary).items()}
+        return ScoreSummary(n=0, n_missing=len(winners), **dict.fromkeys(
+            ("mean", "sd", "min", "max", "ci_low", "ci_high"), math.nan))
+    return optimism_summary(winners["inner_mean"].to_numpy(dtype=float),
+                            winners["outer_score"].to_numpy(dtype=float))
 
 
-def _agreement(repeat: int, outer_fold: int, fold: pd.DataFrame) -> dict:
-    where = {"repeat": repeat, "outer_fold": outer_fold}
+def _agreement(repeat: int, outer_fold: int, fold: pd.DataFrame) -> FoldAgreement:
     try:
         result = rank_agreement(fold["inner_mean"].to_numpy(dtype=float),
                                 fold["outer_score"].to_numpy(dtype=float))
     except ValueError as error:  # fewer than 3 configurations left with both scores in this fold
         n = int((fold["inner_mean"].notna() & fold["outer_score"].notna()).sum())
-        return {**where, "spearman_rho": None, "spearman_p": None, "kendall_tau": None, "kendall_p": None,
-                "n": n, "n_missing": len(fold) - n, "note": str(error)}
-    return {**where, **{name: plain(value) for name, value in asdict(result).items()}}
+        return FoldAgreement(repeat, outer_fold, spearman_rho=math.nan, spearman_p=math.nan, kendall_tau=math.nan,
+                             kendall_p=math.nan, n=n, n_missing=len(fold) - n, note=str(error))
+    return FoldAgreement(repeat, outer_fold, **asdict(result))
 
 
-def _agreement_mean(agreement: list[dict]) -> dict:
+def _agreement_mean(agreement: list[FoldAgreement]) -> dict[str, CoefficientMean]:
     """Mean of each coefficient over the outer folds where it is defined, and over how many."""
     means = {}
     for name in ("spearman_rho", "kendall_tau"):
-        values = pd.Series([row[name] for row in agreement], dtype=float)
+        values = pd.Series([getattr(row, name) for row in agreement], dtype=float)
         if values.notna().any():
             summary = score_summary(values.to_numpy())
-            means[name] = {"mean": plain(summary.mean), "n": summary.n, "n_missing": summary.n_missing}
+            means[name] = CoefficientMean(mean=summary.mean, n=summary.n, n_missing=summary.n_missing)
     return means
 
 
