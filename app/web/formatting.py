@@ -36,7 +36,7 @@ def shown(value, metric: str, digits: int = 3) -> str:
 def shown_span(low, high, metric: str, digits: int = 3, joiner: str = " – ") -> str:
     """A range of ``metric`` (min – max, an interval) as shown, low end first; "–" when undefined."""
     low, high = metric_display(metric).span(low, high)
-    if low is None or high is None:
+    if not (finite(low) and finite(high)):
         return "–"
     return f"{score(low, digits)}{joiner}{score(high, digits)}"
 

@@ -205,3 +205,38 @@ def test_page_lists_stored_assessments_and_keeps_the_choice(client, stored):
         assert comparison["result"]["verdict"] in page
     empty = client.get("/compare").text
     assert "Choose two assessments" in empty and 'id="compare-form"' in empty
+
+
+def _recorded(name, shift, families):
+    """Hand-recorded scores on the same 3 outer folds, made up for this check: 'dead' never scores, 'lone' scores
+    on outer fold 0 only."""
+    recorder = foldwise.Recorder(name, task="classification", metrics=["accuracy"], n_samples=30)
+    for fold in range(3):
+        recorder.outer_fold(0, fold, n_train=20, test=np.arange(fold * 10, fold * 10 + 10))
+        for family in families:
+            for inner_fold in range(2):
+                recorder.inner(0, fold, inner_fold, family=family, params={},
+                               scores={"accuracy": 0.6 + 0.01 * inner_fold + 0.02 * fold})
+            scored = family != "dead" and (family != "lone" or fold == 0)
+            recorder.outer(0, fold, family=family, params={}, error=None if scored else "made up",
+                           scores={"accuracy": 0.55 + shift - 0.01 * fold if scored else None})
+    return recorder.finish()
+
+
+def test_a_candidate_with_no_score_or_one_score_is_summarised_with_nulls_and_counts(client):
+    x, y = _recorded("x", 0.0, ["a", "dead", "lone"]), _recorded("y", 0.02, ["a", "lone"])
+    for assessment in (x, y):
+        response = client.post("/api/assessments", content=assessment.payload.model_dump_json(),
+                               headers={"content-type": "application/json"})
+        assert response.status_code == 201
+    body = client.get("/api/compare", params={"x": x.uuid, "y": y.uuid}).json()
+    rows = {row["candidate"]: row for row in body["summaries"]}
+    assert rows["dead"]["y"] is None
+    assert rows["dead"]["x"] == {"n": 0, "n_missing": 3, "mean": None, "sd": None, "ci_low": None, "ci_high": None}
+    # One score: its mean is that score; no sd and no interval (a t interval needs two), null in JSON.
+    assert rows["lone"]["x"] == {"n": 1, "n_missing": 2, "mean": 0.55, "sd": None, "ci_low": None, "ci_high": None}
+    page = client.get("/compare", params={"x": x.uuid, "y": y.uuid}).text
+    table = page[page.index('id="summary-table"'):]
+    lone = table[table.index("<td>lone</td>"):]
+    lone = lone[:lone.index("</tr>")]
+    assert "– to –" not in lone and "nan" not in lone and "0.550" in lone

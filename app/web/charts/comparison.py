@@ -15,7 +15,7 @@ from foldwise.web.metric_display import metric_display
 
 if TYPE_CHECKING:  # the page module imports this one
     from foldwise.web.fold_scores import FoldPair
-    from foldwise.web.pages.assessments_compare import CandidatePairing
+    from foldwise.web.pages.assessments_compare import CandidatePairing, CandidateSummaries
 
 _BAND = "rgba(91, 100, 112, 0.14)"  # the ROPE band and the critical-difference band, on every chart
 
@@ -134,19 +134,20 @@ def paired_strips_figure(comparisons: list[CandidatePairing], *, rope: float, me
     return figure_json(figure)
 
 
-def intervals_figure(summaries: list[dict], *, colours: dict[str, str], metric: str | None) -> str:
+def intervals_figure(summaries: list[CandidateSummaries], *, colours: dict[str, str], metric: str | None) -> str:
     """Mean and 95% interval of each candidate in each assessment, side by side (unpaired)."""
     display = metric_display(metric)
     figure = go.Figure()
     for side, symbol in (("x", "circle"), ("y", "diamond")):
-        rows = [row for row in summaries if row[side] is not None and row[side]["mean"] is not None]
-        means = [display.value(row[side]["mean"]) for row in rows]
-        spans = [display.span(row[side]["ci_low"], row[side]["ci_high"]) for row in rows]
+        shown = [(row.candidate, summary) for row in summaries
+                 if (summary := getattr(row, side)) is not None and not math.isnan(summary.mean)]
+        means = [display.value(summary.mean) for _, summary in shown]
+        spans = [display.span(summary.ci_low, summary.ci_high) for _, summary in shown]
         figure.add_scatter(
-            x=[row["candidate"] for row in rows], y=means, name=side,
+            x=[candidate for candidate, _ in shown], y=means, name=side,
             mode="markers", offsetgroup=side,
             marker={"symbol": symbol, "size": 12,
-                    "color": [colours.get(row["candidate"], INK) for row in rows]},
+                    "color": [colours.get(candidate, INK) for candidate, _ in shown]},
             error_y={"type": "data", "symmetric": False, "color": MUTED,
                      "array": [_gap(high, mean) for (_, high), mean in zip(spans, means, strict=True)],
                      "arrayminus": [_gap(mean, low) for (low, _), mean in zip(spans, means, strict=True)]},
@@ -193,8 +194,8 @@ def _probability(p: float) -> str:
     return probability_text(p)  # as the verdict and the cards write it
 
 
-def _gap(high: float | None, low: float | None) -> float | None:
-    return None if high is None or low is None else high - low
+def _gap(high: float, low: float) -> float | None:
+    return None if math.isnan(high) or math.isnan(low) else high - low
 
 
 def _tint(colour: str, alpha: float) -> str:

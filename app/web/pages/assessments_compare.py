@@ -24,12 +24,11 @@ from foldwise.web.forms import form_page, rope_from
 from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.query import ROPE_TEXT, Rope
-from foldwise.web.serialise import plain, records
+from foldwise.web.serialise import records
 
 router = APIRouter()
 
 SELECTION = "overall fold winners"  # the candidate that stands for the whole selection procedure
-_SUMMARY_FIELDS = ("n", "n_missing", "mean", "sd", "ci_low", "ci_high")
 
 
 @dataclass(frozen=True)
@@ -57,6 +56,28 @@ class CandidatePairing:
 
 
 @dataclass(frozen=True)
+class CandidateSummary:
+    """One candidate's outer scores in one assessment: mean, sd and the headline interval (NaN where undefined)."""
+
+    n: int  # outer folds scored
+    n_missing: int
+    mean: float
+    sd: float
+    ci_low: float
+    ci_high: float
+
+
+@dataclass(frozen=True)
+class CandidateSummaries:
+    """One candidate (the selection procedure or a family) in x and in y, each on its own."""
+
+    candidate: str
+    kind: str  # "selection procedure" or "family"
+    x: CandidateSummary | None  # None when the candidate is not in that assessment
+    y: CandidateSummary | None
+
+
+@dataclass(frozen=True)
 class AssessmentsCompareContext:
     assessments: list[dict]  # every stored assessment with its outer-folds fingerprint, for the two selects
     x_choice: str  # what the selects show: the requested uuids, else a pair whose outer folds match
@@ -69,7 +90,7 @@ class AssessmentsCompareContext:
     paired: bool
     reason: str  # why the folds cannot be paired; empty when they can
     comparisons: list[CandidatePairing]
-    summaries: list[dict]  # candidate, kind, x and y: score_summary fields (None where absent)
+    summaries: list[CandidateSummaries]  # the selection procedure first
     differences_figure: str | None
     intervals_figure: str | None
 
@@ -122,7 +143,8 @@ def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length
     return {"x": page.x.uuid, "y": page.y.uuid, "metric": page.metric, "rope": page.rope,
             "paired": page.paired, "reason": page.reason or None,
             "fingerprints": {"x": page.x.fingerprint, "y": page.y.fingerprint},
-            "comparisons": [context_json(pairing) for pairing in page.comparisons], "summaries": page.summaries}
+            "comparisons": [context_json(pairing) for pairing in page.comparisons],
+            "summaries": [context_json(row) for row in page.summaries]}
 
 
 def _proposed(listing: list[dict], x: str | None, y: str | None) -> tuple[str, str]:
@@ -209,26 +231,27 @@ def _compare(kind: str, label: str, in_x: str, in_y: str, a: pd.Series, b: pd.Se
                             folds=fold_pairs(a, b))
 
 
-def _summaries(x: Side, y: Side) -> list[dict]:
+def _summaries(x: Side, y: Side) -> list[CandidateSummaries]:
     families = list(dict.fromkeys([*x.families.columns, *y.families.columns]))
-    rows = [{"candidate": SELECTION, "kind": "selection procedure",
-             "x": _summary(x.overall, x.sizes), "y": _summary(y.overall, y.sizes)}]
+    rows = [CandidateSummaries(SELECTION, "selection procedure", x=_summary(x.overall, x.sizes),
+                               y=_summary(y.overall, y.sizes))]
     for family in families:
-        rows.append({"candidate": family, "kind": "family",
-                     "x": _summary(x.families[family], x.sizes) if family in x.families.columns else None,
-                     "y": _summary(y.families[family], y.sizes) if family in y.families.columns else None})
+        rows.append(CandidateSummaries(
+            family, "family", x=_summary(x.families[family], x.sizes) if family in x.families.columns else None,
+            y=_summary(y.families[family], y.sizes) if family in y.families.columns else None))
     return rows
 
 
-def _summary(scores: pd.Series, sizes: pd.DataFrame) -> dict:
+def _summary(scores: pd.Series, sizes: pd.DataFrame) -> CandidateSummary:
     """Mean and sd of one candidate's outer scores, with the headline interval (the corrected t: the plain t
     over folds is no confidence interval, least of all with repeats)."""
     try:
         summary = score_summary(scores.to_numpy())
     except ValueError:  # no score left: every fit of this candidate failed
-        return {"n": 0, "n_missing": int(scores.size)} | dict.fromkeys(_SUMMARY_FIELDS[2:])
+        return CandidateSummary(n=0, n_missing=int(scores.size), mean=math.nan, sd=math.nan, ci_low=math.nan,
+                                ci_high=math.nan)
     folds = sizes.reindex(scores.index)
     interval = headline_interval(scores.to_numpy(dtype=float), n_train=folds["n_train"].to_numpy(dtype=float),
                                  n_test=folds["n_test"].to_numpy(dtype=float))
-    return {key: plain(getattr(summary, key)) for key in _SUMMARY_FIELDS[:4]} | {
-        "ci_low": plain(interval.low), "ci_high": plain(interval.high)}
+    return CandidateSummary(n=summary.n, n_missing=summary.n_missing, mean=summary.mean, sd=summary.sd,
+                            ci_low=interval.low, ci_high=interval.high)
