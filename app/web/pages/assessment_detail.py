@@ -12,6 +12,7 @@ from foldwise import frames
 from foldwise.definitions import nested_estimate
 from foldwise.store import AssessmentReader, AssessmentRecord, EnsembleRecord
 from foldwise.web.errors import error_responses
+from foldwise.web.failed_fits import FailedFit, failed_fits
 from foldwise.web.formatting import design_text
 from foldwise.web.forms import form_page
 from foldwise.web.headline import Headline, headline
@@ -59,7 +60,7 @@ class AssessmentContext:
     families: list[str]
     colours: dict[str, str]
     folds: list[FoldRow]
-    failures: list[dict]
+    failures: list[FailedFit]  # the first _FAILURES_SHOWN; n_failures counts them all
     n_failures: int
     ensembles: list[EnsembleRecord]  # saved ensembles of this assessment, oldest first
     headline: Headline  # nested estimate and interval beside the non-nested best inner score, on `metric`
@@ -95,7 +96,7 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
         metric=metric, metrics=metrics, estimate=estimate, summary=records(summary), families=families,
-        colours=family_colours(families), folds=folds, failures=records(failures),
+        colours=family_colours(families), folds=folds, failures=failed_fits(failures),
         n_failures=record.n_failures, ensembles=reader.ensembles(),
         headline=headline(record, metric=metric, winners=overall, sizes=reader.fold_sizes(),
                           summary=summary, family_outer=outer, final=final),

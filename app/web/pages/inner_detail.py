@@ -13,11 +13,12 @@ from foldwise.store import AssessmentReader, AssessmentRecord
 from foldwise.web.charts.inner import inner_heatmap_figure
 from foldwise.web.context_json import context_json, context_model
 from foldwise.web.errors import error_responses, refusal
+from foldwise.web.failed_fits import FoldFailure, fold_failures
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.query import FoldNumber
-from foldwise.web.serialise import plain, records
+from foldwise.web.serialise import plain
 
 router = APIRouter()
 
@@ -38,6 +39,14 @@ class ConfigRow:
 
 
 @dataclass(frozen=True)
+class FoldRef:
+    """An outer fold to link to."""
+
+    repeat: int
+    outer_fold: int
+
+
+@dataclass(frozen=True)
 class InnerDetailContext:
     record: AssessmentRecord
     metric: str
@@ -50,9 +59,9 @@ class InnerDetailContext:
     families: list[str]
     colours: dict[str, str]
     configs: list[ConfigRow]  # grouped by family in the assessment's order, grid order within
-    failures: list[dict]  # this outer fold's failed fits: level, inner_fold, family, config, message
-    previous_fold: dict | None  # {"repeat", "outer_fold"} or None at the first fold
-    next_fold: dict | None
+    failures: list[FoldFailure]  # this outer fold's failed fits
+    previous_fold: FoldRef | None  # None at the first outer fold
+    next_fold: FoldRef | None  # None at the last
     scores_figure: str
     fit_times_figure: str
 
@@ -76,16 +85,15 @@ def inner_detail_context(reader: AssessmentReader, *, repeat: int = 0, outer_fol
     configs = [_row(c, inner[inner["config"] == c.id], outer[outer["config"] == c.id], inner_folds)
                for c in configurations]
     failures = reader.failures(repeat=repeat, outer_fold=outer_fold)
-    folds = [{"repeat": r, "outer_fold": o}
-             for r in range(design.n_repeats) for o in range(design.n_outer_folds)]
-    here = folds.index({"repeat": repeat, "outer_fold": outer_fold})
+    folds = [FoldRef(r, o) for r in range(design.n_repeats) for o in range(design.n_outer_folds)]
+    here = folds.index(FoldRef(repeat, outer_fold))
     colours = family_colours(families)
     return InnerDetailContext(
         record=record, metric=metric, metrics=design.metrics, repeat=repeat, outer_fold=outer_fold,
         n_train=plain(outer["n_train"].iloc[0]) if len(outer) else None,
         n_test=plain(outer["n_test"].iloc[0]) if len(outer) else None, inner_folds=inner_folds,
         families=families, colours=colours, configs=configs,
-        failures=records(failures.drop(columns=["repeat", "outer_fold"])),
+        failures=fold_failures(failures),
         previous_fold=folds[here - 1] if here > 0 else None,
         next_fold=folds[here + 1] if here + 1 < len(folds) else None,
         scores_figure=inner_heatmap_figure(configs, colours, value="scores", metric=metric),
