@@ -167,6 +167,10 @@ def test_the_schema_declares_what_the_server_answers(client):
     members = paths["/api/assessments/{uuid}/ensembles/preview"]["post"]["requestBody"]["content"]
     assert members["application/json"]["schema"]["$ref"].endswith("PreviewRequest")
     assert packed["PreviewRequest"]["properties"]["members"]["minItems"] == 1
+    # A page's dataclass named like a payload model would split that name into "-Input" and "-Output" and
+    # rename the payload's own schema under a client's feet.
+    assert not [name for name in packed if name.endswith(("-Input", "-Output"))]
+    assert "FoldChoice" in packed and "AssessmentPayload" in packed
 
 
 def _walk(value):

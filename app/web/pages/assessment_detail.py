@@ -20,6 +20,7 @@ from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
 from foldwise.web.serialise import plain, records
 from foldwise.web.shipping import Shipping, shipping
+from foldwise.web.winner_rows import FoldWinner, fold_winner_rows
 
 router = APIRouter()
 
@@ -30,8 +31,8 @@ _FAILURES_SHOWN = 20  # the first failures listed on the page; the count says ho
 class FoldRow:
     repeat: int
     outer_fold: int
-    overall: dict  # the overall winner's row of winners_frame
-    by_family: dict[str, dict]  # family -> its winner's row in this fold
+    overall: FoldWinner
+    by_family: dict[str, FoldWinner]  # by family name; a family with no winner in this fold is absent
 
 
 @dataclass(frozen=True)
@@ -74,12 +75,12 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
     overall = reader.winners(kind="overall", metric=metric)
     per_family = reader.winners(kind="family", metric=metric)
     outer = reader.outer(metric=metric, winners="family")
-    by_fold: dict[tuple[int, int], dict[str, dict]] = {}
-    for row in records(per_family):
-        by_fold.setdefault((row["repeat"], row["outer_fold"]), {})[row["family"]] = row
+    by_fold: dict[tuple[int, int], dict[str, FoldWinner]] = {}
+    for row in fold_winner_rows(per_family):
+        by_fold.setdefault((row.repeat, row.outer_fold), {})[row.family] = row
     folds, seen = [], set()
-    for row in records(overall):  # sorted by (repeat, outer_fold); the first row of a fold is its winner
-        key = (row["repeat"], row["outer_fold"])
+    for row in fold_winner_rows(overall):  # sorted by (repeat, outer_fold); the first row of a fold is its winner
+        key = (row.repeat, row.outer_fold)
         if key not in seen:
             seen.add(key)
             folds.append(FoldRow(*key, row, by_fold.get(key, {})))

@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import dataclass
+from typing import Any
 
 import pandas as pd
 from fastapi import APIRouter, Request
@@ -17,25 +19,57 @@ from foldwise.web.errors import error_responses
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
-from foldwise.web.serialise import records
+from foldwise.web.winner_rows import FoldWinner, fold_winner_rows
 
 router = APIRouter()
+
+
+@dataclass(frozen=True)
+class FamilyWinner:
+    family: str
+    winner: FoldWinner | None  # None when every configuration of the family failed in this outer fold
 
 
 @dataclass(frozen=True)
 class WinnerCell:
     repeat: int
     outer_fold: int
-    overall: dict | None  # the overall winner's row of frames.winners_frame
-    by_family: list[dict]  # per family, in the assessment's order: {"family", "winner": row or None}
+    overall: FoldWinner | None
+    by_family: list[FamilyWinner]  # in the assessment's order
+
+
+@dataclass(frozen=True)
+class Choice:
+    """One value of a parameter in the family's grid, and how often the fold winners chose it."""
+
+    value: Any  # as in the grid; NOT_SET for a grid point that leaves the parameter at its default
+    label: str
+    count: int
+    share: float  # count over the outer folds with a winner; NaN when there is none
+
+
+@dataclass(frozen=True)
+class ParameterChoices:
+    parameter: str
+    choices: list[Choice]  # in grid order
+
+
+@dataclass(frozen=True)
+class FoldPick:
+    """The family's fold winner in one outer fold; config and params None when it had none."""
+
+    repeat: int
+    outer_fold: int
+    config: str | None
+    params: dict[str, Any] | None
 
 
 @dataclass(frozen=True)
 class FamilyStability:
     family: str
     n_folds: int  # outer folds (over repeats) in which the family had a winner
-    parameters: list[dict]  # {"parameter", "choices": [{"value", "label", "count", "share"}]}, grid order
-    by_fold: list[dict]  # every outer fold in order: {"repeat", "outer_fold", "config", "params"}, None when no winner
+    parameters: list[ParameterChoices]  # in grid order
+    by_fold: list[FoldPick]  # every outer fold, in order
     strip_figure: str
 
 
@@ -82,23 +116,21 @@ def _cell(repeat: int, fold: int, overall: pd.DataFrame, per_family: pd.DataFram
     def here(frame):
         return frame[(frame["repeat"] == repeat) & (frame["outer_fold"] == fold)]
 
-    winner = records(here(overall))
-    mine = {row["family"]: row for row in records(here(per_family))}
+    winner = fold_winner_rows(here(overall))
+    mine = {row.family: row for row in fold_winner_rows(here(per_family))}
     return WinnerCell(repeat=repeat, outer_fold=fold, overall=winner[0] if winner else None,
-                      by_family=[{"family": family, "winner": mine.get(family)} for family in families])
+                      by_family=[FamilyWinner(family, mine.get(family)) for family in families])
 
 
-def _by_fold(winners: pd.DataFrame, n_repeats: int, n_outer_folds: int) -> list[dict]:
+def _by_fold(winners: pd.DataFrame, n_repeats: int, n_outer_folds: int) -> list[FoldPick]:
     """The family's winner in every outer fold, in order; config and params None where it had none."""
-    found = {(row["repeat"], row["outer_fold"]): row for row in records(winners[["repeat", "outer_fold", "config",
-                                                                                   "params"]])}
-    return [{"repeat": repeat, "outer_fold": fold,
-             "config": found[(repeat, fold)]["config"] if (repeat, fold) in found else None,
-             "params": found[(repeat, fold)]["params"] if (repeat, fold) in found else None}
+    found = {(row.repeat, row.outer_fold): row for row in fold_winner_rows(winners)}
+    return [FoldPick(repeat, fold, config=found[(repeat, fold)].config if (repeat, fold) in found else None,
+                       params=found[(repeat, fold)].params if (repeat, fold) in found else None)
             for repeat in range(n_repeats) for fold in range(n_outer_folds)]
 
 
-def _choice_counts(configs: list[Configuration], chosen: list[dict]) -> list[dict]:
+def _choice_counts(configs: list[Configuration], chosen: list[dict]) -> list[ParameterChoices]:
     """Per parameter of the family's grid, how often each of its values was the fold winners' choice."""
     parameters: dict[str, dict[str, object]] = {}  # parameter -> value key -> value, in grid order
     for config in configs:
@@ -109,10 +141,10 @@ def _choice_counts(configs: list[Configuration], chosen: list[dict]) -> list[dic
         picked = [_key(params[name]) if name in params else NOT_SET for params in chosen]
         if NOT_SET in picked or any(name not in c.params for c in configs):
             values = {**values, NOT_SET: NOT_SET}
-        table.append({"parameter": name, "choices": [
-            {"value": value, "label": str(value), "count": picked.count(key),
-             "share": picked.count(key) / len(picked) if picked else None}
-            for key, value in values.items()]})
+        table.append(ParameterChoices(name, [
+            Choice(value=value, label=str(value), count=picked.count(key),
+                   share=picked.count(key) / len(picked) if picked else math.nan)
+            for key, value in values.items()]))
     return table
 
 
