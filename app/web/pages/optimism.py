@@ -20,7 +20,7 @@ from foldwise.web.errors import error_responses
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours, family_symbols
-from foldwise.web.serialise import records
+from foldwise.web.winner_rows import FoldWinner, fold_winner_rows
 
 router = APIRouter()
 
@@ -80,7 +80,7 @@ class OptimismContext:
     level: str  # "overall" or "family": which fold winners are plotted
     families: list[str]
     colours: dict[str, str]
-    points: list[dict]  # frames.winners_frame rows: inner_mean, outer_score, optimism per outer fold
+    points: list[FoldWinner]  # the plotted fold winners (overall, or every family's), one per outer fold each
     summaries: list[OptimismRow]  # the overall winners first
     agreement: list[FoldAgreement]  # one per outer fold, empty when agreement_message says why
     agreement_mean: dict[str, CoefficientMean]  # "spearman_rho", "kendall_tau": only those defined on some fold
@@ -110,7 +110,7 @@ def optimism_context(reader: AssessmentReader, *, metric: str | None, level: str
         agreement = [_agreement(int(repeat), int(outer_fold), fold)
                      for (repeat, outer_fold), fold in every.groupby(["repeat", "outer_fold"])]
     colours = family_colours(families)
-    points = records(overall if level == "overall" else per_family)
+    points = fold_winner_rows(overall if level == "overall" else per_family)
     return OptimismContext(
         record=record, metric=metric, metrics=record.design.metrics, level=level, families=families,
         colours=colours, points=points, summaries=summaries, agreement=agreement,
