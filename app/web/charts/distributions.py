@@ -7,7 +7,9 @@ the rows: the folds are paired (the same test rows), which is what the paired te
 
 from __future__ import annotations
 
+import math
 from html import escape
+from typing import TYPE_CHECKING
 
 import plotly.graph_objects as go
 
@@ -15,18 +17,22 @@ from foldwise.web.charts.base import MUTED, figure_json, styled
 from foldwise.web.formatting import params_text
 from foldwise.web.metric_display import metric_display
 
+if TYPE_CHECKING:  # the page module imports this one
+    from foldwise.web.pages.score_distributions import ScoreGroup
+
 ROW_HEIGHT, CHROME = 40, 110  # pixels per row, and for the axis, its title and the margins
 _LANES = 0.5  # the points of a row spread over this share of its height, one lane per outer fold
 _LABEL_LIMIT = 56
 
 
-def distribution_figure(groups, colours: dict[str, str], symbols: dict[str, str], *, metric: str) -> str:
-    """``groups``: ``label``, ``family`` and ``points`` (repeat, outer_fold, score, params), first row on top."""
+def distribution_figure(groups: list[ScoreGroup], colours: dict[str, str], symbols: dict[str, str], *,
+                        metric: str) -> str:
+    """One row per group (its label, family and points), first row on top."""
     display = metric_display(metric)
-    folds = sorted({(p["repeat"], p["outer_fold"]) for group in groups for p in group.points})
+    folds = sorted({(p.repeat, p.outer_fold) for group in groups for p in group.points})
     lane = {fold: _LANES * ((k + 0.5) / len(folds) - 0.5) for k, fold in enumerate(folds)}
-    scores = [{(p["repeat"], p["outer_fold"]): display.value(p["score"]) for p in group.points
-               if p["score"] is not None} for group in groups]
+    scores = [{(p.repeat, p.outer_fold): display.value(p.score) for p in group.points if not math.isnan(p.score)}
+              for group in groups]
     figure = go.Figure()
     for fold in folds:  # first, so the lines lie under the boxes and the points
         figure.add_trace(go.Scatter(
@@ -44,16 +50,16 @@ def distribution_figure(groups, colours: dict[str, str], symbols: dict[str, str]
     for family in dict.fromkeys(group.family for group in groups):
         mine = [(row_pos, group, row) for row_pos, (group, row) in enumerate(zip(groups, scores, strict=True))
                 if group.family == family]
-        points = [(row_pos, p, row[(p["repeat"], p["outer_fold"])]) for row_pos, group, row in mine
-                  for p in group.points if p["score"] is not None]
+        points = [(row_pos, p, row[(p.repeat, p.outer_fold)]) for row_pos, group, row in mine
+                  for p in group.points if not math.isnan(p.score)]
         figure.add_trace(go.Scatter(
             x=[value for _, _, value in points],
-            y=[row_pos + lane[(p["repeat"], p["outer_fold"])] for row_pos, p, _ in points],
+            y=[row_pos + lane[(p.repeat, p.outer_fold)] for row_pos, p, _ in points],
             mode="markers", name=family, meta={"role": "points", "family": family},
             marker={"color": colours[family], "symbol": symbols[family], "size": 8, "opacity": 0.9,
                     "line": {"color": "white", "width": 0.5}},
-            hovertext=[f"{escape(family)}: {escape(params_text(p['params']))}<br>repeat {p['repeat']}, "
-                       f"outer fold {p['outer_fold']}" for _, p, _ in points],
+            hovertext=[f"{escape(family)}: {escape(params_text(p.params))}<br>repeat {p.repeat}, "
+                       f"outer fold {p.outer_fold}" for _, p, _ in points],
             hovertemplate=f"{escape(display.name)} %{{x:.4f}}<br>%{{hovertext}}<extra></extra>"))
     figure = styled(figure, x_title=f"outer score: {display.label}",
                     height=CHROME + ROW_HEIGHT * max(len(groups), 1))

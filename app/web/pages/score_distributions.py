@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
-from typing import Annotated, Literal
+import math
+from dataclasses import dataclass
+from typing import Annotated, Any, Literal
 
 import pandas as pd
 from fastapi import APIRouter, Query, Request
@@ -19,7 +20,6 @@ from foldwise.web.formatting import params_text
 from foldwise.web.forms import form_page
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours, family_symbols
-from foldwise.web.serialise import plain, records
 
 router = APIRouter()
 
@@ -34,6 +34,32 @@ Families = Annotated[list[str] | None, Query()]  # repeated (families=a&families
 
 
 @dataclass(frozen=True)
+class GroupSummary:
+    """A row's outer scores summarised over the outer folds; NaN where a number is undefined."""
+
+    n: int  # outer folds with a score
+    n_missing: int
+    mean: float
+    sd: float
+    min: float
+    max: float
+    interval_low: float  # the headline interval (definitions.headline_interval)
+    interval_high: float
+    spread_low: float  # the plain t interval, a description of the spread; NaN when the outer loop was repeated
+    spread_high: float
+
+
+@dataclass(frozen=True)
+class ScorePoint:
+    """One outer score of a row: a fold winner's (its params vary by fold) or one configuration's."""
+
+    repeat: int
+    outer_fold: int
+    score: float  # NaN for a failed fit
+    params: dict[str, Any]
+
+
+@dataclass(frozen=True)
 class ScoreGroup:
     """One box of the chart and one row of the table: a family's fold winners, or one configuration."""
 
@@ -41,11 +67,8 @@ class ScoreGroup:
     family: str
     config: str | None  # None for a family's fold winners
     params: dict | None
-    # n, n_missing, mean, sd, min, max (score_summary); interval_low, interval_high: the headline interval
-    # (definitions.headline_interval); spread_low, spread_high: the plain t interval as a description of the
-    # spread, None when the outer loop was repeated (never shown there); None where undefined
-    summary: dict
-    points: list[dict]  # repeat, outer_fold, score, params
+    summary: GroupSummary
+    points: list[ScorePoint]
 
 
 @dataclass(frozen=True)
@@ -58,7 +81,7 @@ class DistributionsContext:
     families: list[str]  # every family, in the assessment's order
     selected: list[str]  # the families shown
     colours: dict[str, str]
-    overall: dict  # the nested estimate: summary of the overall winners' outer scores
+    overall: GroupSummary  # the nested estimate: the overall winners' outer scores
     interval_method: str  # definitions.HEADLINE_METHOD, the interval of every row
     interval_level: float
     spread_shown: bool  # the plain t spread is shown: the outer loop was not repeated
@@ -129,7 +152,9 @@ class _Shape:
 
 
 def _group(label, family, config, params, rows: pd.DataFrame, folds: pd.MultiIndex, shape: _Shape) -> ScoreGroup:
-    points = records(rows[["repeat", "outer_fold", "score", "params"]])
+    points = [ScorePoint(repeat=int(row["repeat"]), outer_fold=int(row["outer_fold"]), score=float(row["score"]),
+                         params=row["params"])
+              for row in rows[["repeat", "outer_fold", "score", "params"]].to_dict(orient="records")]
     return ScoreGroup(label=label, family=family, config=config, params=params,
                       summary=_summary(_by_fold(rows, folds), shape), points=points)
 
@@ -139,26 +164,26 @@ def _by_fold(rows: pd.DataFrame, folds: pd.MultiIndex) -> pd.Series:
     return rows.set_index(["repeat", "outer_fold"])["score"].reindex(folds)
 
 
-def _summary(scores: pd.Series, shape: _Shape) -> dict:
+def _summary(scores: pd.Series, shape: _Shape) -> GroupSummary:
     if not scores.notna().any():
-        return {"n": 0, "n_missing": int(scores.size), "mean": None, "sd": None, "min": None, "max": None,
-                "interval_low": None, "interval_high": None, "spread_low": None, "spread_high": None}
+        return GroupSummary(0, int(scores.size), *[math.nan] * 8)
     values = scores.to_numpy(dtype=float)
-    summary = {name: plain(value) for name, value in asdict(score_summary(values)).items()}
+    summary = score_summary(values)
     interval = headline_interval(values, n_train=shape.sizes["n_train"].to_numpy(dtype=float),
                                  n_test=shape.sizes["n_test"].to_numpy(dtype=float))
-    low, high = summary.pop("ci_low"), summary.pop("ci_high")
     # The plain t treats the folds as independent: a description of their spread, and with repeats not even that.
-    spread = (None, None) if shape.repeated else (low, high)
-    return summary | {"interval_low": plain(interval.low), "interval_high": plain(interval.high),
-                      "spread_low": spread[0], "spread_high": spread[1]}
+    spread = (math.nan, math.nan) if shape.repeated else (summary.ci_low, summary.ci_high)
+    return GroupSummary(n=summary.n, n_missing=summary.n_missing, mean=summary.mean, sd=summary.sd,
+                        min=summary.min, max=summary.max, interval_low=interval.low, interval_high=interval.high,
+                        spread_low=spread[0], spread_high=spread[1])
 
 
 def _sorted(groups: list[ScoreGroup], sort: str, *, key) -> list[ScoreGroup]:
     if sort == "name":
         return sorted(groups, key=key)
     # Best mean first; groups without a score go last, in their given order.
-    return sorted(groups, key=lambda group: (group.summary["mean"] is None, -(group.summary["mean"] or 0.0)))
+    return sorted(groups, key=lambda group: (math.isnan(group.summary.mean),
+                                             0.0 if math.isnan(group.summary.mean) else -group.summary.mean))
 
 
 @router.get("/assessments/{uuid}/distributions", name="score_distributions", response_class=HTMLResponse,
