@@ -69,7 +69,7 @@ def assessment_detail_json(reader: ReaderDep, metric: str | None = None):
         "configurations": [config.model_dump() for config in record.configurations],
         "fingerprint": record.fingerprint, "versions": record.versions, "seeds": record.seeds,
         "total_fit_time": record.total_fit_time, "metric": page.metric, "nested_estimate": context_json(page.estimate),
-        "family_summary": page.summary, "n_failures": page.n_failures,
+        "family_summary": [context_json(row) for row in page.summary], "n_failures": page.n_failures,
         "failures": [context_json(failure) for failure in page.failures],
         "headline": asdict(page.headline), "shipping": shipping_json(page.shipping),
     }

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import pandas as pd
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
@@ -18,7 +19,7 @@ from foldwise.web.forms import form_page
 from foldwise.web.headline import Headline, headline
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
-from foldwise.web.serialise import plain, records
+from foldwise.web.serialise import plain
 from foldwise.web.shipping import Shipping, shipping
 from foldwise.web.winner_rows import FoldWinner, fold_winner_rows
 
@@ -33,6 +34,20 @@ class FoldRow:
     outer_fold: int
     overall: FoldWinner
     by_family: dict[str, FoldWinner]  # by family name; a family with no winner in this fold is absent
+
+
+@dataclass(frozen=True)
+class FamilySummaryRow:
+    """A family's fold winners' outer scores over the outer folds (definitions.family_summary); NaN where
+    undefined."""
+
+    family: str
+    mean: float
+    sd: float
+    min: float
+    max: float
+    n: int  # outer folds used
+    n_failed: int  # outer folds without a score
 
 
 @dataclass(frozen=True)
@@ -57,7 +72,7 @@ class AssessmentContext:
     metric: str
     metrics: list[str]
     estimate: EstimateSummary
-    summary: list[dict]
+    summary: list[FamilySummaryRow]  # best mean first
     families: list[str]
     colours: dict[str, str]
     folds: list[FoldRow]
@@ -96,12 +111,19 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
     selecting = overall if metric == design.selection_metric else reader.winners(kind="overall")
     return AssessmentContext(
         record=record, design=design_text(design.n_outer_folds, design.n_inner_folds, design.n_repeats),
-        metric=metric, metrics=metrics, estimate=estimate, summary=records(summary), families=families,
+        metric=metric, metrics=metrics, estimate=estimate, summary=_summary_rows(summary), families=families,
         colours=family_colours(families), folds=folds, failures=failed_fits(failures),
         n_failures=record.n_failures, ensembles=reader.ensembles(),
         headline=headline(record, metric=metric, winners=overall, sizes=reader.fold_sizes(),
                           summary=summary, family_outer=outer, final=final),
         shipping=shipping(record, selecting, final))
+
+
+def _summary_rows(summary: pd.DataFrame) -> list[FamilySummaryRow]:
+    return [FamilySummaryRow(family=row["family"], mean=float(row["mean"]), sd=float(row["sd"]),
+                             min=float(row["min"]), max=float(row["max"]), n=int(row["n"]),
+                             n_failed=int(row["n_failed"]))
+            for row in summary.to_dict(orient="records")]
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail", response_class=HTMLResponse,
