@@ -24,7 +24,7 @@ from jinja2 import Environment, FileSystemLoader, select_autoescape
 import foldwise
 from foldwise import definitions
 from foldwise.assessment import Assessment
-from foldwise.stats.paired import compare_paired
+from foldwise.stats.paired import PairedResult, compare_paired
 from foldwise.web.fold_scores import family_fold_scores, fold_sizes
 from foldwise.web.formatting import CAUTION, FILTERS, params_text
 from foldwise.web.lookup import ReaderDep
@@ -62,16 +62,12 @@ class WinnerRow:
 
 @dataclass(frozen=True)
 class Comparison:
+    """The best family (a) against the runner-up (b) on the same outer folds."""
+
     a: str
     b: str
-    n: int
-    mean_diff: float
-    corrected_p: float
-    bayes_a: float
-    bayes_rope: float
-    bayes_b: float
     rope: float
-    verdict: str
+    result: PairedResult
 
 
 @dataclass(frozen=True)
@@ -205,9 +201,7 @@ def _comparison(assessment: Assessment, summary: pd.DataFrame, *, rope: float) -
                                 n_test=sizes["n_test"].to_numpy(), rope=rope, names=(a, b))
     except ValueError:  # too few folds where both have a score: the table says so by its counts
         return None
-    return Comparison(a=a, b=b, n=result.n, mean_diff=result.mean_diff, corrected_p=result.corrected_p,
-                      bayes_a=result.bayes_a, bayes_rope=result.bayes_rope, bayes_b=result.bayes_b,
-                      rope=rope, verdict=result.verdict)
+    return Comparison(a=a, b=b, rope=rope, result=result)
 
 
 def _final(assessment: Assessment) -> FinalSummary | None:
