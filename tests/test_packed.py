@@ -21,8 +21,8 @@ def _with_failed_fit(payload: AssessmentPayload) -> AssessmentPayload:
     """The payload with inner score 4 and outer fit time 2 null, as a failed fit leaves them, and its fold
     winners left out, so that they are chosen again from the inner scores."""
     fields = payload.model_dump()
-    fields["inner_scores"]["score"][4] = None
-    fields["outer_scores"]["fit_time"][2] = None
+    fields["inner_scores"]["score"][4] = np.nan
+    fields["outer_scores"]["fit_time"][2] = np.nan
     fields["family_winners"] = fields["overall_winners"] = None
     return AssessmentPayload.model_validate(fields)
 
@@ -52,7 +52,7 @@ def test_a_packed_document_reads_back_as_the_same_assessment(small_assessment):
     for again in (AssessmentPayload.model_validate_json(payload.packed_json()),
                   AssessmentPayload.model_validate(json.loads(payload.packed_json()))):
         assert again == payload
-        assert again.inner_scores.score[4] is None and again.outer_scores.fit_time[2] is None
+        assert np.isnan(again.inner_scores.score[4]) and np.isnan(again.outer_scores.fit_time[2])
         assert [p.data for p in again.predictions] == [p.data for p in payload.predictions]
 
 
@@ -61,7 +61,7 @@ def test_a_version_1_document_of_lists_is_still_stored(client, small_assessment)
     response = client.post("/api/assessments", content=json.dumps(doc), headers=JSON)
     assert response.status_code == 201, response.text
     scores = client.get(f"/api/assessments/{small_assessment.uuid}/scores", params={"level": "inner"}).json()
-    assert [row["score"] for row in scores] == small_assessment.payload.inner_scores.score
+    assert [row["score"] for row in scores] == small_assessment.payload.inner_scores.score.tolist()
 
 
 def test_packed_and_list_pushes_store_the_same_rows(open_client, tmp_path, small_assessment):
