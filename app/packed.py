@@ -60,43 +60,41 @@ def _unpack(value: dict, dtypes: dict[str, str]) -> np.ndarray:
 
 
 def _int_column(value: Any, handler) -> np.ndarray:
-    """An int64 column, read-only: from a packed column, an integer array, or a list of integers."""
+    """An int64 column, read-only: from a packed column, an integer array, or a list of integers.
+
+    Integers past int64 are kept as Python integers (an object array), so that the payload's reference
+    checks refuse the row by its path as they refuse any other position out of range: no payload that
+    passes them holds one.
+    """
     if isinstance(value, dict):
-        array = _unpack(value, _INT_TYPES)
-    elif isinstance(value, np.ndarray):
+        return _frozen(_unpack(value, _INT_TYPES), np.int64)
+    if isinstance(value, np.ndarray):
         array = _one_dimensional(value, "iu", "integers")
         if array.dtype.kind == "u" and len(array) and array.max() > _INT64_MAX:
-            raise ValueError(f"value {int(np.argmax(array > _INT64_MAX))} is larger than any position or fold "
-                             "number")
-    else:
-        values = handler(value)  # pydantic's strict list of integers, refusing row by row
-        try:
-            array = np.array(values, dtype=np.int64)
-        except OverflowError:
-            position = next(i for i, number in enumerate(values) if not -_INT64_MAX - 1 <= number <= _INT64_MAX)
-            raise ValueError(f"value {position} is {values[position]}, larger than any position or fold "
-                             "number") from None
-    return _frozen(array, np.int64)
+            return _frozen(array, object)
+        return _frozen(array, np.int64)
+    values = handler(value)  # pydantic's strict list of integers, refusing row by row
+    try:
+        return _frozen(np.array(values, dtype=np.int64), np.int64)
+    except OverflowError:
+        return _frozen(np.array(values, dtype=object), object)
 
 
 def _float_column(value: Any, handler) -> np.ndarray:
     """A float64 column with NaN for a failed fit, read-only: from a packed column or a float array (NaN for
     a failed fit), or a list of numbers with null for a failed fit. No column holds an infinity."""
+    kind = "a column"
     if isinstance(value, dict):
-        array = _unpack(value, _FLOAT_TYPES)
+        array, kind = _unpack(value, _FLOAT_TYPES), "a packed column"
     elif isinstance(value, np.ndarray):
         array = _one_dimensional(value, "iuf", "numbers")
     else:
-        values = handler(value)  # pydantic's strict list of numbers or nulls, refusing row by row
-        array = np.array(values, dtype=np.float64)  # null becomes NaN
-        # A list says "failed" with null alone: a NaN there is a number that went wrong.
-        for position in np.flatnonzero(~np.isfinite(array)).tolist():
-            if values[position] is not None:
-                raise ValueError(f"value {position} is {values[position]}; use null for a failed fit")
-        return _frozen(array, np.float64)
+        # pydantic's strict list of numbers or nulls, refusing row by row; null becomes NaN. (A NaN or an
+        # infinity in a list is refused by the payload's blocks, at their path: null alone says "failed".)
+        return _frozen(np.array(handler(value), dtype=np.float64), np.float64)
     infinite = np.flatnonzero(np.isinf(array))
     if len(infinite):
-        raise ValueError(f"value {infinite[0]} is {array[infinite[0]]}; a column uses NaN for a failed fit and "
+        raise ValueError(f"value {infinite[0]} is {array[infinite[0]]}; {kind} uses NaN for a failed fit and "
                          "holds no infinities")
     return _frozen(array, np.float64)
 

@@ -135,6 +135,9 @@ class OuterFold(_Strict):
     y_true: list[Label] | None = Field(default=None, description="true targets of the test rows")
 
 
+_FLOAT_COLUMNS = ("score", "fit_time", "score_time")
+
+
 class _Columns(_Strict):
     """Columns of equal length, each a read-only numpy array (``foldwise.packed``): int64 positions, float64
     scores and times with NaN for a failed fit."""
@@ -149,6 +152,27 @@ class _Columns(_Strict):
             for name in type(self).model_fields)
 
     __hash__ = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _null_for_failed(cls, data: Any) -> Any:
+        """A list says "failed" with null alone: NaN or an infinity there is refused, at the block's path."""
+        if not isinstance(data, dict):
+            return data
+        for name in _FLOAT_COLUMNS:
+            values = data.get(name)
+            if not isinstance(values, list):
+                continue
+            try:
+                numbers = np.array(values, dtype=np.float64)  # null becomes NaN
+            except (TypeError, ValueError):
+                continue  # not numbers: the column's own validation refuses them, row by row
+            if numbers.ndim != 1:
+                continue  # lists in a column: refused there too
+            for position in np.flatnonzero(~np.isfinite(numbers)).tolist():
+                if isinstance(values[position], float):  # text or null: the column's own business
+                    raise ValueError(f"{name}[{position}] is {values[position]}; use null for a failed fit")
+        return data
 
     @model_validator(mode="after")
     def _same_lengths(self):
