@@ -165,8 +165,8 @@ class _Columns(_Strict):
                 continue
             try:
                 numbers = np.array(values, dtype=np.float64)  # null becomes NaN
-            except (TypeError, ValueError):
-                continue  # not numbers: the column's own validation refuses them, row by row
+            except (TypeError, ValueError, OverflowError):
+                continue  # not numbers (or an integer past any float): refused by the column, row by row
             if numbers.ndim != 1:
                 continue  # lists in a column: refused there too
             for position in np.flatnonzero(~np.isfinite(numbers)).tolist():

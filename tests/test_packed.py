@@ -158,3 +158,14 @@ def test_a_packed_column_is_json_null_where_the_array_is_nan(small_assessment):
     # The reference: a plain loop over the array, NaN written as null.
     expected = [None if value != value else value for value in payload.inner_scores.score.tolist()]
     assert lists["inner_scores"]["score"] == expected
+
+
+@pytest.mark.parametrize(("value", "message"), [(float("nan"), "score[2] is nan; use null for a failed fit"),
+                                                 (10**400, "Input should be a valid number")])
+def test_a_list_with_a_number_no_float_column_keeps_is_refused_naming_the_column(client, small_assessment,
+                                                                                 value, message):
+    doc = json.loads(small_assessment.payload.model_dump_json())
+    doc["inner_scores"]["score"][2] = value
+    response = client.post("/api/assessments", content=json.dumps(doc), headers=JSON)
+    assert response.status_code == 422, response.text
+    assert message in response.text and "inner_scores" in response.text
