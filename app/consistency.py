@@ -80,7 +80,7 @@ def fold_winners(payload, inner: _Grid | None = None) -> list[FoldWinners]:
     n_configs, n_inner = len(payload.configurations), design.n_inner_folds
     n_folds = design.n_repeats * design.n_outer_folds
     scores = np.empty(inner.size)
-    scores[inner.flat] = payload.inner_scores.array("score")  # NaN where a fit failed
+    scores[inner.flat] = payload.inner_scores.score  # NaN where a fit failed
     # (fold, inner fold, config, metric) → one contiguous (config, inner fold) matrix per fold, as the runner's
     selection = np.ascontiguousarray(scores.reshape(n_folds, n_inner, n_configs, -1)[..., 0].transpose(0, 2, 1))
     members = _family_members(payload)
@@ -178,7 +178,7 @@ class _Grid:
         flat = np.zeros(n_rows, dtype=np.int64)
         for name, size in zip(names, sizes, strict=True):  # the reference checks keep each key in range
             flat *= size
-            flat += columns.array(name)
+            flat += getattr(columns, name)
         return cls(names, sizes, flat, n_rows)
 
     def key(self, position: int) -> dict[str, int]:
@@ -361,10 +361,10 @@ def _disagreement(payload, fold: int, where: str, named: int, chosen: int) -> st
 def _selection_means(payload, fold: int) -> np.ndarray:
     """The inner means on the selection metric of every configuration in one fold (for messages)."""
     design = payload.design
-    column = payload.inner_scores.array
-    rows = (column("repeat") * design.n_outer_folds + column("outer_fold") == fold) & (column("metric") == 0)
+    inner = payload.inner_scores
+    rows = (inner.repeat * design.n_outer_folds + inner.outer_fold == fold) & (inner.metric == 0)
     table = np.full((len(payload.configurations), design.n_inner_folds), np.nan)
-    table[column("config")[rows], column("inner_fold")[rows]] = column("score")[rows]
+    table[inner.config[rows], inner.inner_fold[rows]] = inner.score[rows]
     return inner_mean(table)
 
 
@@ -401,7 +401,7 @@ def _check_final(payload, found: _Findings) -> None:
     if int(np.prod(sizes, dtype=object)) < _LARGEST_GRID:  # the reference checks keep each key in range
         flat = np.zeros(len(columns.score), dtype=np.int64)
         for name, size in zip(names, sizes, strict=True):
-            flat = flat * size + np.asarray(getattr(columns, name), dtype=np.int64)
+            flat = flat * size + getattr(columns, name)
     grid = _Grid(names, sizes, flat, len(columns.score))
     before = len(found.problems)
     _check_rows(found, ("final", "inner_scores"), grid, complete=True,
@@ -409,7 +409,7 @@ def _check_final(payload, found: _Findings) -> None:
     if len(found.problems) > before or design.selected_by != "inner_mean":
         return
     scores = np.empty(grid.size)
-    scores[flat] = np.asarray(columns.score, dtype=float)
+    scores[flat] = columns.score
     selection = np.ascontiguousarray(scores.reshape(sizes)[..., 0].T)  # (config, inner fold), as the runner's
     chosen = select_in_fold(selection, _family_members(payload))
     expected = [config for config in chosen.family if config is not None]

@@ -24,8 +24,7 @@ def inner_frame(payload: AssessmentPayload) -> pd.DataFrame:
     frame = pd.DataFrame({
         "repeat": columns.repeat, "outer_fold": columns.outer_fold, "inner_fold": columns.inner_fold,
         "config_position": columns.config, "metric_position": columns.metric,
-        "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
-        "score_time": _floats(columns.score_time),
+        "score": columns.score, "fit_time": columns.fit_time, "score_time": columns.score_time,
     })
     return _name_configs(frame, payload)[INNER_COLUMNS]
 
@@ -37,8 +36,7 @@ def final_frame(payload: AssessmentPayload) -> pd.DataFrame:
     columns = payload.final.inner_scores
     frame = pd.DataFrame({
         "inner_fold": columns.inner_fold, "config_position": columns.config, "metric_position": columns.metric,
-        "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
-        "score_time": _floats(columns.score_time),
+        "score": columns.score, "fit_time": columns.fit_time, "score_time": columns.score_time,
     })
     return _name_configs(frame, payload)[FINAL_COLUMNS]
 
@@ -48,8 +46,7 @@ def outer_frame(payload: AssessmentPayload) -> pd.DataFrame:
     frame = pd.DataFrame({
         "repeat": columns.repeat, "outer_fold": columns.outer_fold,
         "config_position": columns.config, "metric_position": columns.metric,
-        "score": _floats(columns.score), "fit_time": _floats(columns.fit_time),
-        "score_time": _floats(columns.score_time),
+        "score": columns.score, "fit_time": columns.fit_time, "score_time": columns.score_time,
     })
     frame = _name_configs(frame, payload)
     sizes = pd.DataFrame([(f.repeat, f.outer_fold, f.n_train, len(f.test_indices)) for f in payload.outer_folds],
@@ -109,15 +106,12 @@ def family_summary(outer: pd.DataFrame, metric: str, *, families: list[str], n_f
     return definitions.family_summary(rows, families=families, n_folds=n_folds)
 
 
-def _floats(values: list) -> np.ndarray:
-    return np.array([np.nan if value is None else value for value in values], dtype=float)
-
-
 def _name_configs(frame: pd.DataFrame, payload: AssessmentPayload) -> pd.DataFrame:
     configs = payload.configurations
+    families, ids, params = (np.empty(len(configs), dtype=object) for _ in range(3))
+    for position, config in enumerate(configs):
+        families[position], ids[position], params[position] = config.family, config.id, config.params
     positions = frame["config_position"].to_numpy()
-    frame["family"] = [configs[i].family for i in positions]
-    frame["config"] = [configs[i].id for i in positions]
-    frame["params"] = [configs[i].params for i in positions]
-    frame["metric"] = [payload.design.metrics[i] for i in frame["metric_position"]]
+    frame["family"], frame["config"], frame["params"] = families[positions], ids[positions], params[positions]
+    frame["metric"] = np.array(payload.design.metrics, dtype=object)[frame["metric_position"].to_numpy()]
     return frame

@@ -11,6 +11,8 @@ from __future__ import annotations
 import hashlib
 import json
 
+import numpy as np
+
 from foldwise.payload import AssessmentPayload, Prediction
 
 # Not content: when the document was made (a sender that leaves it out gets the time of arrival, so a
@@ -26,9 +28,9 @@ def content_digest(payload: AssessmentPayload) -> str:
     The canonical form: every field except those in ``OUTSIDE_THE_DIGEST``, as validated (so ``0.80``
     and ``0.8``, ``1`` and ``1.0`` in a score column, or a list and a packed column, are the same), as
     JSON with sorted keys and no spaces, the predictions' fields other than their bytes as one list per
-    field; then each score column by name as little-endian int64 or float64 (NaN for null); then the
-    prediction blocks' raw bytes in payload order. Winners left out and computed by the validator are
-    part of it, as they are of what is stored. Rows keep their order: it is stored too.
+    field; then each score column by name as little-endian int64 or float64 (one NaN bit pattern for every
+    failed fit); then the prediction blocks' raw bytes in payload order. Winners left out and computed by
+    the validator are part of it, as they are of what is stored. Rows keep their order: it is stored too.
     """
     header = payload.model_dump(mode="json", exclude=set(OUTSIDE_THE_DIGEST | _HASHED_APART))
     if not header["design"].get("trusted"):  # added later: a document without trust keeps the digest it had
@@ -40,7 +42,9 @@ def content_digest(payload: AssessmentPayload) -> str:
     for block in ("inner_scores", "outer_scores"):
         columns = getattr(payload, block)
         for name in sorted(type(columns).model_fields):
-            values = columns.array(name)
+            values = getattr(columns, name)
+            if values.dtype.kind == "f":  # one NaN for every failed fit, whatever bits a sender's NaN had
+                values = np.where(np.isnan(values), np.nan, values)
             values = values.astype("<f8" if values.dtype.kind == "f" else "<i8", copy=False)
             digest.update(f"{block}.{name}:{len(values)}".encode())
             digest.update(values.tobytes())

@@ -6,6 +6,11 @@ milliseconds and its type is known from its ``dtype``. A packed column is the JS
 ``{"dtype": "float64", "data": "<base64>"}``; in a float column NaN stands for null (a failed fit).
 Both forms are accepted everywhere; ``model_dump_json(context=PACKED)`` writes the packed one.
 
+In Python a column is what it is in the packed form: a read-only numpy array, int64, or float64 with
+NaN for a failed fit, decoded straight from the packed bytes (no copy on a little-endian machine) or
+made once from a list. ``null`` stands for a failed fit only in JSON: a list is read with null as NaN
+and written with NaN as null (``nullable_list``; SQL's NULL likewise).
+
 A prediction block (``Blob``) is bytes in memory: base64 text in a JSON document, or a reference
 ``{"offset", "size"}`` into the tail of a packed body (``foldwise.wire``), whose readers and writers
 (``TailReader``, ``TailWriter``) travel in the validation or serialisation context.
@@ -18,7 +23,15 @@ import binascii
 from typing import Annotated, Any
 
 import numpy as np
-from pydantic import PlainSerializer, SerializationInfo, ValidationInfo, WithJsonSchema, WrapValidator
+from pydantic import (
+    GetPydanticSchema,
+    PlainSerializer,
+    SerializationInfo,
+    ValidationInfo,
+    WithJsonSchema,
+    WrapValidator,
+)
+from pydantic_core import core_schema
 
 PACKED = {"packed": True}  # the serialisation context that packs score columns
 TAIL = "tail"  # context key: a TailWriter when writing a packed body, its tail (a memoryview) when reading
@@ -46,57 +59,110 @@ def _unpack(value: dict, dtypes: dict[str, str]) -> np.ndarray:
     return np.frombuffer(raw, dtype=dtypes[dtype])
 
 
-def _ints(value: Any, handler) -> list[int]:
+def _int_column(value: Any, handler) -> np.ndarray:
+    """An int64 column, read-only: from a packed column, an integer array, or a list of integers.
+
+    Integers past int64 are kept as Python integers (an object array), so that the payload's reference
+    checks refuse the row by its path as they refuse any other position out of range: no payload that
+    passes them holds one.
+    """
     if isinstance(value, dict):
-        return _unpack(value, _INT_TYPES).tolist()
-    return handler(value)
+        return _frozen(_unpack(value, _INT_TYPES), np.int64)
+    if isinstance(value, np.ndarray):
+        array = _one_dimensional(value, "iu", "integers")
+        if array.dtype.kind == "u" and len(array) and array.max() > _INT64_MAX:
+            return _frozen(array, object)
+        return _frozen(array, np.int64)
+    values = handler(value)  # pydantic's strict list of integers, refusing row by row
+    try:
+        return _frozen(np.array(values, dtype=np.int64), np.int64)
+    except OverflowError:
+        return _frozen(np.array(values, dtype=object), object)
 
 
-def _floats(value: Any, handler) -> list[float | None]:
-    if not isinstance(value, dict):
-        return handler(value)
-    values = _unpack(value, _FLOAT_TYPES)
-    infinite = np.flatnonzero(np.isinf(values))
+def _float_column(value: Any, handler) -> np.ndarray:
+    """A float64 column with NaN for a failed fit, read-only: from a packed column or a float array (NaN for
+    a failed fit), or a list of numbers with null for a failed fit. No column holds an infinity."""
+    kind = "a column"
+    if isinstance(value, dict):
+        array, kind = _unpack(value, _FLOAT_TYPES), "a packed column"
+    elif isinstance(value, np.ndarray):
+        array = _one_dimensional(value, "iuf", "numbers")
+    else:
+        # pydantic's strict list of numbers or nulls, refusing row by row; null becomes NaN. (A NaN or an
+        # infinity in a list is refused by the payload's blocks, at their path: null alone says "failed".)
+        return _frozen(np.array(handler(value), dtype=np.float64), np.float64)
+    infinite = np.flatnonzero(np.isinf(array))
     if len(infinite):
-        raise ValueError(f"value {infinite[0]} is {values[infinite[0]]}; a packed column uses NaN for a "
-                         "failed fit and holds no infinities")
-    column = values.tolist()
-    for position in np.flatnonzero(np.isnan(values)).tolist():
-        column[position] = None
-    return column
+        raise ValueError(f"value {infinite[0]} is {array[infinite[0]]}; {kind} uses NaN for a failed fit and "
+                         "holds no infinities")
+    return _frozen(array, np.float64)
+
+
+def _one_dimensional(array: np.ndarray, kinds: str, what: str) -> np.ndarray:
+    if array.ndim != 1 or array.dtype.kind not in kinds:
+        raise ValueError(f"a column is a one-dimensional array of {what}, received a {array.ndim}-dimensional "
+                         f"array of {array.dtype}")
+    return array
+
+
+def _frozen(array: np.ndarray, dtype: type) -> np.ndarray:
+    """The column in native ``dtype``, read-only as the validated payload is. An array decoded from a packed
+    column is used as it is (on a little-endian machine); another array is copied, so that the payload
+    shares no memory its caller might change."""
+    if array.base is None or not isinstance(array.base, bytes):
+        array = array.astype(dtype)  # a copy
+    else:
+        array = array.astype(dtype, copy=False)
+    array.flags.writeable = False
+    return array
 
 
 def _packing(info: SerializationInfo) -> bool:
     return bool(info.context and info.context.get("packed"))
 
 
-def _pack(values: list, dtype: str, info: SerializationInfo) -> list | dict[str, str]:
-    if not _packing(info):
-        return values
-    array = np.array(values, dtype=(_INT_TYPES | _FLOAT_TYPES)[dtype])  # None becomes NaN in a float column
-    return {"dtype": dtype, "data": base64.b64encode(array.tobytes()).decode("ascii")}
+def _pack(array: np.ndarray, dtype: str, info: SerializationInfo) -> np.ndarray | list | dict[str, str]:
+    """Packed (with the ``PACKED`` context); a list with null for NaN in JSON, the only place null stands for
+    a failed fit; in Python, a writable copy of the array (as ``model_dump`` gives new lists of lists)."""
+    if _packing(info):
+        little = array.astype((_INT_TYPES | _FLOAT_TYPES)[dtype], copy=False)
+        return {"dtype": dtype, "data": base64.b64encode(little.tobytes()).decode("ascii")}
+    if not info.mode_is_json():
+        return np.array(array)
+    return nullable_list(array)
 
 
-def _schema(item: dict, dtypes: dict[str, str]) -> WithJsonSchema:
+def nullable_list(array: np.ndarray) -> list:
+    """The column as JSON and SQL hold it: Python numbers, None (null, NULL) where the array holds NaN."""
+    values = array.tolist()
+    if array.dtype.kind == "f":
+        for position in np.flatnonzero(np.isnan(array)).tolist():
+            values[position] = None
+    return values
+
+
+def _column(item: Any, validate, dtype: str, dtypes: dict[str, str], item_schema: dict) -> Any:
+    """A column typed as the numpy array it is in Python, validated from what JSON and Python send."""
+    def schema(_source, handler) -> core_schema.CoreSchema:
+        return core_schema.no_info_wrap_validator_function(
+            validate, handler.generate_schema(list[item]),
+            serialization=core_schema.plain_serializer_function_ser_schema(
+                lambda array, info: _pack(array, dtype, info), info_arg=True))
+
     packed = {"type": "object", "required": ["dtype", "data"], "additionalProperties": False,
               "properties": {"dtype": {"type": "string", "enum": list(dtypes)},
                              "data": {"type": "string", "contentEncoding": "base64"}}}
-    return WithJsonSchema({"anyOf": [{"type": "array", "items": item}, packed]})
+    return Annotated[np.ndarray, GetPydanticSchema(schema),
+                     WithJsonSchema({"anyOf": [{"type": "array", "items": item_schema}, packed]})]
 
 
-def _pack_ints(values: list[int], info: SerializationInfo) -> list | dict[str, str]:
-    return _pack(values, "int32", info)  # positions and fold numbers of a valid payload fit in int32
+_INT64_MAX = np.iinfo(np.int64).max
 
-
-def _pack_floats(values: list[float | None], info: SerializationInfo) -> list | dict[str, str]:
-    return _pack(values, "float64", info)
-
-
-IntColumn = Annotated[list[int], WrapValidator(_ints), PlainSerializer(_pack_ints),
-                      _schema({"type": "integer"}, _INT_TYPES)]
-FloatColumn = Annotated[list[float | None], WrapValidator(_floats), PlainSerializer(_pack_floats),
-                        _schema({"anyOf": [{"type": "number"}, {"type": "null"}]}, _FLOAT_TYPES)]
-
+# positions and fold numbers of a valid payload fit in int32, so int columns travel packed as int32
+IntColumn = _column(int, _int_column, "int32", _INT_TYPES, {"type": "integer"})
+FloatColumn = _column(float | None, _float_column, "float64", _FLOAT_TYPES,
+                      {"anyOf": [{"type": "number"}, {"type": "null"}]})
 
 
 class TailWriter:

@@ -3,6 +3,8 @@
 Scores travel as columns (one list per field) with configurations and metrics referred to by their
 position, so an assessment of hundreds of thousands of inner scores stays a compact JSON document;
 from schema version 2 a column may also travel packed (``foldwise.packed``), as the client sends it.
+In Python every column is a read-only numpy array, float64 scores and times with NaN for a failed fit:
+null is JSON's way of saying so, and only JSON's.
 Outer-test predictions are little-endian float64, one block of bytes per (outer fold, configuration):
 base64 text in JSON, raw bytes after the header of a packed body (``foldwise.wire``). Estimators
 travel as base64 of skops files (``skops.io.dumps``), which a loader can refuse type by type.
@@ -25,7 +27,6 @@ from pydantic import (
     ConfigDict,
     Field,
     FiniteFloat,
-    PrivateAttr,
     TypeAdapter,
     field_validator,
     model_validator,
@@ -137,16 +138,51 @@ class OuterFold(_Strict):
 _FLOAT_COLUMNS = ("score", "fit_time", "score_time")
 
 
-class _ArrayCache(dict):
-    """Columns as arrays, kept beside the fields: not part of the value, so equal payloads stay equal."""
+class _Columns(_Strict):
+    """Columns of equal length, each a read-only numpy array (``foldwise.packed``): int64 positions, float64
+    scores and times with NaN for a failed fit."""
+
+    def __len__(self) -> int:
+        return len(self.score)
 
     def __eq__(self, other) -> bool:
-        return isinstance(other, _ArrayCache)
+        # Arrays compare element by element; two columns are equal when every value is, NaN where NaN.
+        return type(other) is type(self) and all(
+            np.array_equal(getattr(self, name), getattr(other, name), equal_nan=True)
+            for name in type(self).model_fields)
 
     __hash__ = None
 
+    @model_validator(mode="before")
+    @classmethod
+    def _null_for_failed(cls, data: Any) -> Any:
+        """A list says "failed" with null alone: NaN or an infinity there is refused, at the block's path."""
+        if not isinstance(data, dict):
+            return data
+        for name in _FLOAT_COLUMNS:
+            values = data.get(name)
+            if not isinstance(values, list):
+                continue
+            try:
+                numbers = np.array(values, dtype=np.float64)  # null becomes NaN
+            except (TypeError, ValueError, OverflowError):
+                continue  # not numbers (or an integer past any float): refused by the column, row by row
+            if numbers.ndim != 1:
+                continue  # lists in a column: refused there too
+            for position in np.flatnonzero(~np.isfinite(numbers)).tolist():
+                if isinstance(values[position], float):  # text or null: the column's own business
+                    raise ValueError(f"{name}[{position}] is {values[position]}; use null for a failed fit")
+        return data
 
-class _ScoreColumns(_Strict):
+    @model_validator(mode="after")
+    def _same_lengths(self):
+        lengths = {name: len(getattr(self, name)) for name in type(self).model_fields}
+        if len(set(lengths.values())) > 1:
+            raise ValueError(f"columns differ in length: {lengths}")
+        return self
+
+
+class _ScoreColumns(_Columns):
     repeat: IntColumn
     outer_fold: IntColumn
     config: IntColumn = Field(description="position in `configurations`")
@@ -154,36 +190,6 @@ class _ScoreColumns(_Strict):
     score: FloatColumn = Field(description="null for a failed fit")
     fit_time: FloatColumn
     score_time: FloatColumn
-
-    _arrays: _ArrayCache = PrivateAttr(default_factory=lambda: _ArrayCache())
-
-    def __len__(self) -> int:
-        return len(self.score)
-
-    def array(self, name: str) -> np.ndarray:
-        """The column as numpy numbers, made once and shared by the checks, the digest and the store: int64
-        (Python integers where one is too large for int64), or float64 with NaN for null. Read-only, as
-        the payload is once validated."""
-        values = getattr(self, name)
-        held, made = self._arrays.get(name, (None, None))
-        if held is not values:  # made from another list (a model_copy with an update), or not yet
-            made = np.array(values, dtype=float) if name in _FLOAT_COLUMNS else _int_array(values)
-            made.flags.writeable = False
-            self._arrays[name] = (values, made)
-        return made
-
-    @model_validator(mode="after")
-    def _same_lengths(self):
-        lengths = {name: len(getattr(self, name)) for name in type(self).model_fields}
-        if len(set(lengths.values())) > 1:
-            raise ValueError(f"columns differ in length: {lengths}")
-        for name in _FLOAT_COLUMNS:
-            values = getattr(self, name)
-            # None becomes NaN here, so only the few non-finite positions need a second look
-            for position in np.flatnonzero(~np.isfinite(self.array(name))):
-                if values[position] is not None:
-                    raise ValueError(f"{name}[{position}] is {values[position]}; use null for a failed fit")
-        return self
 
 
 class InnerScores(_ScoreColumns):
@@ -231,7 +237,7 @@ class FittedModel(_Strict):
     skops: str = Field(min_length=1, description="base64 of skops.io.dumps of the fitted estimator")
 
 
-class FinalScores(_Strict):
+class FinalScores(_Columns):
     """The final selection's inner scores: one row per inner fold, configuration and metric."""
 
     inner_fold: IntColumn
@@ -240,13 +246,6 @@ class FinalScores(_Strict):
     score: FloatColumn = Field(description="null for a failed fit")
     fit_time: FloatColumn
     score_time: FloatColumn
-
-    @model_validator(mode="after")
-    def _same_lengths(self):
-        lengths = {name: len(getattr(self, name)) for name in type(self).model_fields}
-        if len(set(lengths.values())) > 1:
-            raise ValueError(f"columns differ in length: {lengths}")
-        return self
 
 
 class FinalSelection(_Strict):
@@ -331,9 +330,9 @@ class AssessmentPayload(_Strict):
     def recheck(self) -> None:
         """Run the consistency checks again on the fields as they are now, for a payload changed since it was
         validated (``save`` does, before storing): the same refusals as a push would get."""
-        for block in (self.inner_scores, self.outer_scores):
-            block._arrays.clear()
-            block._same_lengths()
+        for name in ("inner_scores", "outer_scores"):  # columns assigned since are read as arrays again
+            block = getattr(self, name)
+            setattr(self, name, type(block).model_validate(dict(block)))
         _check_consistency(self)
         settle(self)
 
@@ -465,7 +464,7 @@ def _check_final(final: FinalSelection, n_configs: int, n_metrics: int) -> None:
     columns = final.inner_scores
     for field, limit, target in (("config", n_configs, "configurations"), ("metric", n_metrics, "design.metrics"),
                                  ("inner_fold", final.n_inner_folds, "final.n_inner_folds")):
-        values = _int_array(getattr(columns, field))
+        values = getattr(columns, field)
         if len(outside := np.flatnonzero((values < 0) | (values >= limit))):
             raise ValueError(f"final.inner_scores.{field}[{outside[0]}]: {values[outside[0]]} is not a position "
                              f"in {target} (0..{limit - 1})")
@@ -529,11 +528,11 @@ def _check_text(where: str, text: str) -> None:
 def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) -> None:
     """Every row's references in range; numpy finds the first row that is not, for the message."""
     for field, target, limit in (("config", "configurations", n_configs), ("metric", "design.metrics", n_metrics)):
-        values = columns.array(field)
+        values = getattr(columns, field)
         if len(outside := np.flatnonzero((values < 0) | (values >= limit))):
             raise ValueError(f"{name}.{field}[{outside[0]}]: {values[outside[0]]} is not a position in {target} "
                              f"(0..{limit - 1})")
-    repeats, outer_folds = columns.array("repeat"), columns.array("outer_fold")
+    repeats, outer_folds = columns.repeat, columns.outer_fold
     # (repeat, outer fold) as one number: folds' repeats stay below MAX_COUNT, so it fits int64
     width = 1 + max(o for _, o in folds)
     fold_keys = np.array([r * width + o for r, o in folds], dtype=np.int64)
@@ -544,15 +543,7 @@ def _check_columns(name, columns, folds, n_configs, n_metrics, n_inner_folds) ->
         raise ValueError(f"{name}.outer_fold[{unknown[0]}]: repeat {repeats[unknown[0]]}, outer fold "
                          f"{outer_folds[unknown[0]]} is not in outer_folds")
     if isinstance(columns, InnerScores):
-        values = columns.array("inner_fold")
+        values = columns.inner_fold
         if len(outside := np.flatnonzero((values < 0) | (values >= n_inner_folds))):
             raise ValueError(f"inner_scores.inner_fold[{outside[0]}]: {values[outside[0]]} is out of range of "
                              f"design.n_inner_folds (0..{n_inner_folds - 1})")
-
-
-def _int_array(values: list[int]) -> np.ndarray:
-    """The column as int64, or as Python integers when one is too large for int64 (still comparable)."""
-    try:
-        return np.asarray(values, dtype=np.int64)
-    except OverflowError:
-        return np.asarray(values, dtype=object)

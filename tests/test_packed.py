@@ -21,8 +21,8 @@ def _with_failed_fit(payload: AssessmentPayload) -> AssessmentPayload:
     """The payload with inner score 4 and outer fit time 2 null, as a failed fit leaves them, and its fold
     winners left out, so that they are chosen again from the inner scores."""
     fields = payload.model_dump()
-    fields["inner_scores"]["score"][4] = None
-    fields["outer_scores"]["fit_time"][2] = None
+    fields["inner_scores"]["score"][4] = np.nan
+    fields["outer_scores"]["fit_time"][2] = np.nan
     fields["family_winners"] = fields["overall_winners"] = None
     return AssessmentPayload.model_validate(fields)
 
@@ -52,7 +52,7 @@ def test_a_packed_document_reads_back_as_the_same_assessment(small_assessment):
     for again in (AssessmentPayload.model_validate_json(payload.packed_json()),
                   AssessmentPayload.model_validate(json.loads(payload.packed_json()))):
         assert again == payload
-        assert again.inner_scores.score[4] is None and again.outer_scores.fit_time[2] is None
+        assert np.isnan(again.inner_scores.score[4]) and np.isnan(again.outer_scores.fit_time[2])
         assert [p.data for p in again.predictions] == [p.data for p in payload.predictions]
 
 
@@ -61,7 +61,7 @@ def test_a_version_1_document_of_lists_is_still_stored(client, small_assessment)
     response = client.post("/api/assessments", content=json.dumps(doc), headers=JSON)
     assert response.status_code == 201, response.text
     scores = client.get(f"/api/assessments/{small_assessment.uuid}/scores", params={"level": "inner"}).json()
-    assert [row["score"] for row in scores] == small_assessment.payload.inner_scores.score
+    assert [row["score"] for row in scores] == small_assessment.payload.inner_scores.score.tolist()
 
 
 def test_packed_and_list_pushes_store_the_same_rows(open_client, tmp_path, small_assessment):
@@ -122,3 +122,50 @@ def test_a_packed_reference_out_of_range_is_refused_naming_the_row(client, small
     response = client.post("/api/assessments", content=body, headers=JSON)
     assert response.status_code == 422
     assert "inner_scores.config[3]: 99 is not a position in configurations" in response.text
+
+
+def test_columns_are_read_only_float64_and_int64_arrays_from_every_form(small_assessment):
+    payload = _with_failed_fit(small_assessment.payload)
+    forms = {"packed": AssessmentPayload.model_validate_json(payload.packed_json()),
+             "lists": AssessmentPayload.model_validate_json(payload.model_dump_json()),
+             "arrays": AssessmentPayload.model_validate(payload.model_dump())}
+    for form, again in forms.items():
+        for block, names in COLUMNS.items():
+            for name in names:
+                column = getattr(getattr(again, block), name)
+                expected = np.float64 if name in ("score", "fit_time", "score_time") else np.int64
+                assert isinstance(column, np.ndarray) and column.dtype == expected, (form, block, name)
+                assert not column.flags.writeable, (form, block, name)
+        assert np.isnan(again.inner_scores.score[4]), form  # the failed fit, NaN in every form
+    # Decoded from the packed bytes as they are, not copied number by number (a little-endian machine).
+    assert isinstance(forms["packed"].inner_scores.score.base, bytes)
+
+
+def test_an_array_given_is_copied_and_a_dump_can_be_changed_without_changing_the_payload(small_assessment):
+    payload = small_assessment.payload
+    fields = payload.model_dump()
+    scores = fields["inner_scores"]["score"]
+    again = AssessmentPayload.model_validate(fields)
+    scores[0] = 0.123  # the caller's array, changed after validation
+    assert again.inner_scores.score[0] == payload.inner_scores.score[0] != 0.123
+    assert again == payload
+
+
+def test_a_packed_column_is_json_null_where_the_array_is_nan(small_assessment):
+    payload = _with_failed_fit(small_assessment.payload)
+    lists = json.loads(payload.model_dump_json())
+    assert lists["inner_scores"]["score"][4] is None and lists["outer_scores"]["fit_time"][2] is None
+    # The reference: a plain loop over the array, NaN written as null.
+    expected = [None if value != value else value for value in payload.inner_scores.score.tolist()]
+    assert lists["inner_scores"]["score"] == expected
+
+
+@pytest.mark.parametrize(("value", "message"), [(float("nan"), "score[2] is nan; use null for a failed fit"),
+                                                 (10**400, "Input should be a valid number")])
+def test_a_list_with_a_number_no_float_column_keeps_is_refused_naming_the_column(client, small_assessment,
+                                                                                 value, message):
+    doc = json.loads(small_assessment.payload.model_dump_json())
+    doc["inner_scores"]["score"][2] = value
+    response = client.post("/api/assessments", content=json.dumps(doc), headers=JSON)
+    assert response.status_code == 422, response.text
+    assert message in response.text and "inner_scores" in response.text

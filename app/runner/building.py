@@ -31,6 +31,7 @@ from foldwise.runner.space import Space
 from foldwise.runner.splits import Layout
 from foldwise.trust import refused_types
 
+_FLOAT_COLUMNS = ("score", "fit_time", "score_time")
 _RECORDED_PACKAGES = ("foldwise", "scikit-learn", "numpy", "scipy", "pandas", "joblib")
 
 
@@ -91,7 +92,7 @@ def build_payload(*, name, dataset, space: Space, layout: Layout, y, metrics, cl
                         for c in space.candidates],
         outer_folds=[OuterFold(repeat=s.repeat, outer_fold=s.outer_fold, n_train=len(s.train),
                                test_indices=s.test.tolist(), y_true=targets[s.test].tolist()) for s in splits],
-        inner_scores=InnerScores(**inner), outer_scores=OuterScores(**outer),
+        inner_scores=InnerScores(**_arrays(inner)), outer_scores=OuterScores(**_arrays(outer)),
         family_winners=family_winners, overall_winners=overall_winners,
         predictions=predictions, failures=failures, models=models,
         versions=package_versions(), seeds=_seeds(space, layout),
@@ -136,13 +137,19 @@ def _columns(metrics, inner: bool) -> dict[str, list]:
     return {name: [] for name in names + (["inner_fold"] if inner else [])}
 
 
+def _arrays(columns: dict[str, list]) -> dict[str, np.ndarray]:
+    """The columns as the payload keeps them: float64 scores and times (NaN for a failed fit), int64 positions."""
+    return {name: np.array(values, dtype=np.float64 if name in _FLOAT_COLUMNS else np.int64)
+            for name, values in columns.items()}
+
+
 def _append(columns, result: FitResult, where, **extra) -> None:
     for position, metric in enumerate(result.scores):
         score = result.scores[metric]
         for name, value in {**where, **extra}.items():
             columns[name].append(value)
         columns["metric"].append(position)
-        columns["score"].append(None if score != score else score)  # NaN travels as null
+        columns["score"].append(score)  # NaN for a failed fit, as the payload keeps it
         columns["fit_time"].append(result.fit_time)
         columns["score_time"].append(result.score_time)
 

@@ -58,7 +58,7 @@ def final_selection(space: Space, splits, inner_splitter: str, results: dict[tup
             for position, metric in enumerate(metrics):
                 score = result.scores[metric]
                 for name, value in (("inner_fold", i), ("config", c), ("metric", position),
-                                    ("score", None if score != score else score), ("fit_time", result.fit_time),
+                                    ("score", score), ("fit_time", result.fit_time),
                                     ("score_time", result.score_time)):
                     columns[name].append(value)
             if result.error:
@@ -68,7 +68,9 @@ def final_selection(space: Space, splits, inner_splitter: str, results: dict[tup
         family = space.candidates[chosen.overall].family
         model, fit_time, error = _refit(space, chosen.overall, X, y, (fit_params or {}).get(family, {}), raises)
     return FinalSelection(
-        n_inner_folds=n_folds, inner_splitter=inner_splitter, inner_scores=FinalScores(**columns),
+        n_inner_folds=n_folds, inner_splitter=inner_splitter, inner_scores=FinalScores(**{
+            name: np.array(values, dtype=np.float64 if name in ("score", "fit_time", "score_time") else np.int64)
+            for name, values in columns.items()}),
         family_winners=[c for c in chosen.family if c is not None], config=chosen.overall,
         refit_time=fit_time, refit_error=error,
         model_skops=_skops(model) if model is not None and keep_model else None)

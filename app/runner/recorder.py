@@ -42,8 +42,8 @@ class Recorder:
         self.prediction_kind = prediction_kind
         self._folds: dict[tuple[int, int], OuterFold] = {}
         self._configs: dict[str, Configuration] = {}
-        self._inner: dict[tuple, tuple[dict, float | None, float | None]] = {}
-        self._outer: dict[tuple, tuple[dict, float | None, float | None]] = {}
+        self._inner: dict[tuple, tuple[list[float], float, float]] = {}
+        self._outer: dict[tuple, tuple[list[float], float, float]] = {}
         self._predictions: list[Prediction] = []
         self._failures: list[Failure] = []
 
@@ -97,7 +97,8 @@ class Recorder:
             inner_scores=InnerScores(**_columns(self._inner, inner=True)),
             outer_scores=OuterScores(**_columns(self._outer, inner=False)),
             predictions=self._predictions, failures=self._failures, versions=package_versions(),
-            total_fit_time=float(sum(entry[1] or 0.0 for entry in [*self._inner.values(), *self._outer.values()]))))
+            total_fit_time=float(sum(fit_time for _, fit_time, _ in [*self._inner.values(), *self._outer.values()]
+                                     if not math.isnan(fit_time)))))
 
     def _config(self, family: str, params: dict[str, Any]) -> int:
         key = digest(family, params)  # one configuration per description (foldwise.runner.canonical)
@@ -108,19 +109,19 @@ class Recorder:
             self._configs[key] = Configuration(id=ident, family=family, params=canonical_params(params))
         return list(self._configs).index(key)
 
-    def _scores(self, scores: dict[str, float | None]) -> list[float | None]:
+    def _scores(self, scores: dict[str, float | None]) -> list[float]:
         unknown = sorted(set(scores) - set(self.metrics))
         if unknown:
             raise ValueError(f"scores for metrics {unknown} that the recorder was not told of {self.metrics}")
         values = [scores.get(metric) for metric in self.metrics]
-        return [None if value is None or not math.isfinite(value) else float(value) for value in values]
+        return [math.nan if value is None or not math.isfinite(value) else float(value) for value in values]
 
 
-def _time(seconds: float | None) -> float | None:
-    return None if seconds is None else float(seconds)
+def _time(seconds: float | None) -> float:
+    return math.nan if seconds is None else float(seconds)
 
 
-def _columns(entries: dict, *, inner: bool) -> dict[str, list]:
+def _columns(entries: dict, *, inner: bool) -> dict[str, np.ndarray]:
     names = ["repeat", "outer_fold", "inner_fold", "config"] if inner else ["repeat", "outer_fold", "config"]
     columns = {name: [] for name in [*names, "metric", "score", "fit_time", "score_time"]}
     for key in sorted(entries):
@@ -132,4 +133,6 @@ def _columns(entries: dict, *, inner: bool) -> dict[str, list]:
             columns["score"].append(score)
             columns["fit_time"].append(fit_time)
             columns["score_time"].append(score_time)
-    return columns
+    # float64 scores and times with NaN for a failed fit or a time not given, int64 positions
+    return {name: np.array(values, dtype=np.float64 if name in ("score", "fit_time", "score_time") else np.int64)
+            for name, values in columns.items()}

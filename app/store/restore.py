@@ -6,7 +6,7 @@ import base64
 from dataclasses import dataclass
 
 import numpy as np
-from sqlalchemy import Connection, Engine, Row, Table, and_, select
+from sqlalchemy import Connection, Double, Engine, Row, Table, and_, select
 
 from foldwise.payload import (
     AssessmentPayload,
@@ -176,12 +176,13 @@ def _outer_folds(connection: Connection, assessment_id: int) -> list[OuterFold]:
             for r, o, n_train, indices, y_true in _rows(connection, tables.outer_folds, assessment_id, names)]
 
 
-def _columns(connection: Connection, table: Table, assessment_id: int) -> dict[str, list]:
-    """A score block back in the payload's columnar form (None for null)."""
+def _columns(connection: Connection, table: Table, assessment_id: int) -> dict[str, np.ndarray]:
+    """A score block back in the payload's columnar form: int64 positions, float64 with NaN for NULL."""
     names = tables.payload_fields(table)
     rows = _rows(connection, table, assessment_id, names)
     values = zip(*rows, strict=True) if rows else ([] for _ in names)
-    return {name: list(column) for name, column in zip(names, values, strict=True)}
+    return {name: np.array(column, dtype=float if isinstance(table.c[name].type, Double) else np.int64)
+            for name, column in zip(names, values, strict=True)}
 
 
 def _rows(connection: Connection, table: Table, assessment_id: int, names: list[str], *where) -> list[Row]:

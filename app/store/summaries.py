@@ -12,6 +12,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from foldwise.definitions import SUMMARY_KEYS, inner_summaries
+from foldwise.packed import nullable_list
 
 KEYS = SUMMARY_KEYS
 
@@ -20,12 +21,9 @@ def inner_summary_columns(repeat: Sequence[int], outer_fold: Sequence[int], conf
                           metric: Sequence[int], score) -> dict[str, list]:
     """One row per (repeat, outer_fold, config, metric) present, in that sorted order.
 
-    Returns columns ``KEYS`` plus ``inner_mean`` and ``inner_std``, None where undefined.
+    Returns columns ``KEYS`` plus ``inner_mean`` and ``inner_std`` as the database driver takes them (lists
+    of Python numbers, None for SQL's NULL where the definition gives NaN).
     """
     summaries = inner_summaries(repeat, outer_fold, config, metric, np.asarray(score, dtype=float))
     columns = {name: summaries[name].tolist() for name in KEYS}
-    return columns | {name: _nullable(summaries[name]) for name in ("inner_mean", "inner_std")}
-
-
-def _nullable(values: np.ndarray) -> list[float | None]:
-    return [None if value != value else value for value in values.tolist()]
+    return columns | {name: nullable_list(summaries[name]) for name in ("inner_mean", "inner_std")}

@@ -15,6 +15,7 @@ from sqlalchemy.exc import IntegrityError
 
 from foldwise.definitions import NestedEstimate, nested_estimate
 from foldwise.identity import content_digest
+from foldwise.packed import nullable_list
 from foldwise.payload import AssessmentPayload
 from foldwise.store import tables
 from foldwise.store.engine import write_transaction
@@ -115,16 +116,17 @@ def _assessment_row(payload: AssessmentPayload) -> dict:
 def nested_estimate_of(payload: AssessmentPayload) -> NestedEstimate:
     """The nested estimate (``foldwise.definitions``) on the selection metric, its folds in (repeat, outer
     fold) order."""
-    chosen = {(c.repeat, c.outer_fold, c.config) for c in payload.overall_winners}
-    columns = payload.outer_scores
-    rows = sorted((r, o, np.nan if s is None else s)
-                  for r, o, c, m, s in zip(columns.repeat, columns.outer_fold, columns.config, columns.metric,
-                                           columns.score, strict=True)
-                  if m == 0 and (r, o, c) in chosen)
-    design = payload.design
-    sizes = {(fold.repeat, fold.outer_fold): (fold.n_train, len(fold.test_indices)) for fold in payload.outer_folds}
-    return nested_estimate([score for _, _, score in rows], n_folds=design.n_repeats * design.n_outer_folds,
-                           n_train=[sizes[r, o][0] for r, o, _ in rows], n_test=[sizes[r, o][1] for r, o, _ in rows])
+    design, columns = payload.design, payload.outer_scores
+    width = len(payload.configurations)
+    chosen = np.array([(c.repeat * design.n_outer_folds + c.outer_fold) * width + c.config
+                       for c in payload.overall_winners], dtype=np.int64)
+    fold = columns.repeat * design.n_outer_folds + columns.outer_fold
+    rows = np.flatnonzero((columns.metric == 0) & np.isin(fold * width + columns.config, chosen))
+    rows = rows[np.argsort(fold[rows], kind="stable")]  # one winner per fold: (repeat, outer fold) order
+    sizes = {(f.repeat, f.outer_fold): (f.n_train, len(f.test_indices)) for f in payload.outer_folds}
+    folds = [divmod(int(position), design.n_outer_folds) for position in fold[rows]]
+    return nested_estimate(columns.score[rows], n_folds=design.n_repeats * design.n_outer_folds,
+                           n_train=[sizes[key][0] for key in folds], n_test=[sizes[key][1] for key in folds])
 
 
 def _or_none(value: float) -> float | None:
@@ -145,7 +147,8 @@ def _insert_children(connection: Connection, assessment_id: int, payload: Assess
         "test_indices": [np.asarray(f.test_indices, dtype="<i8").tobytes() for f in folds]})
     for table, block in ((tables.inner_scores, payload.inner_scores),
                          (tables.outer_scores, payload.outer_scores)):
-        put(table, {name: getattr(block, name) for name in tables.payload_fields(table)})
+        # NaN becomes NULL here, as SQL says "no score"; the reads give NaN back.
+        put(table, {name: nullable_list(getattr(block, name)) for name in tables.payload_fields(table)})
     inner = payload.inner_scores
     summaries = inner_summary_columns(inner.repeat, inner.outer_fold, inner.config, inner.metric, inner.score)
     _insert_plain(connection, tables.inner_summaries,

@@ -156,11 +156,9 @@ def _final_inner_best(record: AssessmentRecord, metric: str, final: StoredFinal 
     if final is None or final.selection.config is None:
         return None
     columns = final.selection.inner_scores
-    position = record.design.metrics.index(metric)
-    chosen = [(fold, score) for fold, config, at, score in
-              zip(columns.inner_fold, columns.config, columns.metric, columns.score, strict=True)
-              if config == final.selection.config and at == position]
-    scores = np.array([np.nan if score is None else score for _, score in sorted(chosen)], dtype=float)
+    rows = np.flatnonzero((columns.config == final.selection.config)
+                          & (columns.metric == record.design.metrics.index(metric)))
+    scores = columns.score[rows[np.argsort(columns.inner_fold[rows], kind="stable")]]  # NaN where a fit failed
     return plain(float(definitions.inner_mean(scores))) if scores.size else None
 
 

@@ -18,12 +18,16 @@ _FORMULA_AFTER_BREAK = re.compile(r"([\r\n])(?=[=+\-@\t\r])")
 
 
 def records(frame: pd.DataFrame) -> list[dict]:
-    """Rows as dicts of plain Python values, NaN as None, timestamps as ISO 8601."""
+    """Rows as dicts of plain Python values, NaN as None, timestamps as ISO 8601: the JSON boundary, the one
+    place where a failed fit's NaN becomes null."""
     rows = frame.to_dict(orient="records")
     return [{column: plain(value) for column, value in row.items()} for row in rows]
 
 
 def plain(value):
+    """A value as JSON holds it: NaN and infinities as None, numpy numbers and arrays as Python's."""
+    if isinstance(value, np.ndarray):
+        return _plain_list(value.tolist())
     if isinstance(value, float | np.floating):
         value = float(value)
         return None if math.isnan(value) or math.isinf(value) else value
@@ -38,6 +42,10 @@ def plain(value):
     if hasattr(value, "isoformat"):
         return value.isoformat()
     return value
+
+
+def _plain_list(values: list) -> list:
+    return [_plain_list(item) if isinstance(item, list) else plain(item) for item in values]
 
 
 def to_csv(frame: pd.DataFrame) -> str:

@@ -106,15 +106,16 @@ def synthetic_payload(size: Size, *, seed: int = 0) -> AssessmentPayload:
         seeds={"invented": seed}, total_fit_time=float(inner_fit.sum() + outer_fit.sum()))
 
 
-def _columns(scores: np.ndarray, fit_time: np.ndarray, names: tuple[str, ...]) -> dict[str, list]:
-    """Score rows in the runner's order (folds, then configuration, then metric), as payload columns."""
+def _columns(scores: np.ndarray, fit_time: np.ndarray, names: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """Score rows in the runner's order (folds, then configuration, then metric), as payload columns: arrays,
+    as the runner hands them over."""
     keys = np.indices(scores.shape).reshape(scores.ndim, -1)
-    columns = {name: keys[axis].tolist() for axis, name in enumerate(names)}
-    columns["metric"] = keys[-1].tolist()
-    columns["score"] = scores.ravel().tolist()
+    columns = {name: keys[axis] for axis, name in enumerate(names)}
+    columns["metric"] = keys[-1]
+    columns["score"] = scores.ravel()
     times = np.repeat(fit_time.ravel(), scores.shape[-1])
-    columns["fit_time"] = times.tolist()
-    columns["score_time"] = (times / 20).tolist()
+    columns["fit_time"] = times
+    columns["score_time"] = times / 20
     return columns
 
 

@@ -102,8 +102,9 @@ def test_growing_and_fresh_runs_store_the_same_scores(cancer):
                             n_jobs=2, grow=grow).payload for grow in (True, False)}
     for table in ("inner_scores", "outer_scores"):
         grown, fresh = (getattr(runs[grow], table) for grow in (True, False))
-        assert_array_equal(np.asarray(grown.score, dtype=float), np.asarray(fresh.score, dtype=float))
-        assert grown.config == fresh.config and grown.outer_fold == fresh.outer_fold
+        assert_array_equal(grown.score, fresh.score)
+        assert_array_equal(grown.config, fresh.config)
+        assert_array_equal(grown.outer_fold, fresh.outer_fold)
     assert runs[True].family_winners == runs[False].family_winners
     assert [p.data for p in runs[True].predictions] == [p.data for p in runs[False].predictions]
     # Each grown configuration's fit time includes what it inherited; the total counts every tree once.

@@ -228,5 +228,5 @@ def test_a_journal_missing_part_of_shared_and_grown_fits_resumes_to_the_same_sco
     assert len(journaled(path)) == len(keys)
     assert_same_results(resumed, whole)
     left, right = resumed.payload.final, whole.payload.final
-    assert (left.config, left.family_winners, left.inner_scores.score) == \
-        (right.config, right.family_winners, right.inner_scores.score)
+    assert (left.config, left.family_winners) == (right.config, right.family_winners)
+    np.testing.assert_array_equal(left.inner_scores.score, right.inner_scores.score)  # NaN where NaN

@@ -306,7 +306,8 @@ def _changed_winner(payload: AssessmentPayload) -> str:
 def _appended_inner_row(payload: AssessmentPayload) -> str:
     inner = payload.inner_scores
     for name in type(inner).model_fields:
-        getattr(inner, name).append(getattr(inner, name)[5])
+        column = getattr(inner, name)
+        setattr(inner, name, np.append(column, column[5]))
     return f"inner_scores.score[{len(inner) - 1}]: "
 
 
