@@ -54,7 +54,7 @@ router.add_api_route("/assessments", push_assessment, name="push_assessment", me
 
 @router.get("/assessments", name="index_json", response_model=list[AssessmentRow])
 def index_json(store: StoreDep, dataset: str | None = None, name: str | None = None):
-    return index_context(store, dataset=dataset, name=name).assessments
+    return [context_json(row) for row in index_context(store, dataset=dataset, name=name).assessments]
 
 
 @router.get("/assessments/{uuid}", name="assessment_detail_json", response_model=AssessmentAnswer,

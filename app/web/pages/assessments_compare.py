@@ -21,10 +21,10 @@ from foldwise.web.context_json import context_json
 from foldwise.web.errors import error_responses, refusal
 from foldwise.web.fold_scores import FoldPair, family_fold_scores, fold_pairs, overall_fold_scores
 from foldwise.web.forms import form_page, rope_from
+from foldwise.web.listing import ListedAssessment, listed_fields
 from foldwise.web.lookup import StoreDep, assessment_or_404
 from foldwise.web.palette import family_colours
 from foldwise.web.query import ROPE_TEXT, Rope
-from foldwise.web.serialise import records
 
 router = APIRouter()
 
@@ -40,6 +40,11 @@ class Side:
     overall: pd.Series  # the overall fold winners' outer scores
     sizes: pd.DataFrame  # n_train, n_test per outer fold
     best: str | None  # the family with the best mean outer score
+
+
+@dataclass(frozen=True)
+class Choosable(ListedAssessment):
+    fingerprint: str  # equal for two assessments exactly when their outer folds can be paired
 
 
 @dataclass(frozen=True)
@@ -79,7 +84,7 @@ class CandidateSummaries:
 
 @dataclass(frozen=True)
 class AssessmentsCompareContext:
-    assessments: list[dict]  # every stored assessment with its outer-folds fingerprint, for the two selects
+    assessments: list[Choosable]  # every stored assessment, newest first, for the two selects
     x_choice: str  # what the selects show: the requested uuids, else a pair whose outer folds match
     y_choice: str
     x: AssessmentRecord | None
@@ -101,7 +106,8 @@ def assessments_compare_context(store: StoreReader, *, x: str | None, y: str | N
         raise refusal(422, f"the ROPE is a half-width in score units, a number of 0 or more (e.g. 0.01); "
                            f"got {rope!r}", loc=["query", "rope"])
     fingerprints = store.fingerprints()
-    listing = [row | {"fingerprint": fingerprints.get(row["uuid"], "")} for row in records(store.assessments())]
+    listing = [Choosable(**listed_fields(row), fingerprint=fingerprints.get(row["uuid"], ""))
+               for row in store.assessments().to_dict(orient="records")]
     if not (x and y):
         x, y = _proposed(listing, x or None, y or None)
         return AssessmentsCompareContext(listing, x, y, None, None, None, [], rope, False, "", [], [],
@@ -147,11 +153,11 @@ def assessments_compare_json(store: StoreDep, x: Annotated[str, Query(min_length
             "summaries": [context_json(row) for row in page.summaries]}
 
 
-def _proposed(listing: list[dict], x: str | None, y: str | None) -> tuple[str, str]:
+def _proposed(listing: list[Choosable], x: str | None, y: str | None) -> tuple[str, str]:
     """The pair the selects offer when one or both are unset: first one whose outer folds match (newest
     first), else the newest other assessment."""
-    uuids = [row["uuid"] for row in listing]
-    prints = {row["uuid"]: row["fingerprint"] for row in listing}
+    uuids = [row.uuid for row in listing]
+    prints = {row.uuid: row.fingerprint for row in listing}
 
     def partner(of: str, other: str | None) -> str:
         others = [uuid for uuid in uuids if uuid != of]
