@@ -94,8 +94,7 @@ def fold_winners_context(reader: AssessmentReader, *, metric: str | None) -> Fol
     families = [family.name for family in record.families]
     colours = family_colours(families)
     design = record.design
-    grid = [[_cell(repeat, fold, overall, per_family, families) for fold in range(design.n_outer_folds)]
-            for repeat in range(design.n_repeats)]
+    grid = _grid(overall, per_family, families, design.n_repeats, design.n_outer_folds)
     stability = []
     for family in families:
         mine = per_family[per_family["family"] == family]
@@ -111,15 +110,19 @@ def fold_winners_context(reader: AssessmentReader, *, metric: str | None) -> Fol
                               n_folds=len(overall), grid=grid, stability=stability)
 
 
-def _cell(repeat: int, fold: int, overall: pd.DataFrame, per_family: pd.DataFrame,
-          families: list[str]) -> WinnerCell:
-    def here(frame):
-        return frame[(frame["repeat"] == repeat) & (frame["outer_fold"] == fold)]
-
-    winner = fold_winner_rows(here(overall))
-    mine = {row.family: row for row in fold_winner_rows(here(per_family))}
-    return WinnerCell(repeat=repeat, outer_fold=fold, overall=winner[0] if winner else None,
-                      by_family=[FamilyWinner(family, mine.get(family)) for family in families])
+def _grid(overall: pd.DataFrame, per_family: pd.DataFrame, families: list[str], n_repeats: int,
+          n_outer_folds: int) -> list[list[WinnerCell]]:
+    first: dict[tuple[int, int], FoldWinner] = {}  # a fold's overall winner: its first row
+    for row in fold_winner_rows(overall):
+        first.setdefault((row.repeat, row.outer_fold), row)
+    mine: dict[tuple[int, int], dict[str, FoldWinner]] = {}
+    for row in fold_winner_rows(per_family):
+        mine.setdefault((row.repeat, row.outer_fold), {})[row.family] = row
+    return [[WinnerCell(repeat=repeat, outer_fold=fold, overall=first.get((repeat, fold)),
+                        by_family=[FamilyWinner(family, mine.get((repeat, fold), {}).get(family))
+                                   for family in families])
+             for fold in range(n_outer_folds)]
+            for repeat in range(n_repeats)]
 
 
 def _by_fold(winners: pd.DataFrame, n_repeats: int, n_outer_folds: int) -> list[FoldPick]:
