@@ -19,7 +19,6 @@ from foldwise.web.forms import form_page
 from foldwise.web.headline import Headline, headline
 from foldwise.web.lookup import ReaderDep, metric_or_422
 from foldwise.web.palette import family_colours
-from foldwise.web.serialise import plain
 from foldwise.web.shipping import Shipping, shipping
 from foldwise.web.winner_rows import FoldWinner, fold_winner_rows
 
@@ -52,13 +51,13 @@ class FamilySummaryRow:
 
 @dataclass(frozen=True)
 class EstimateSummary:
-    """The nested estimate as the page states it: mean and sd (None where undefined), the range of the
+    """The nested estimate as the page states it: mean and sd (NaN where undefined), the range of the
     overall fold winners' outer scores, the outer folds used of the design's, and that said in words."""
 
-    mean: float | None
-    sd: float | None
-    min: float | None
-    max: float | None
+    mean: float
+    sd: float
+    min: float
+    max: float
     n: int
     n_folds: int
     n_failed: int
@@ -101,8 +100,8 @@ def assessment_context(reader: AssessmentReader, *, metric: str | None) -> Asses
             folds.append(FoldRow(*key, row, by_fold.get(key, {})))
     scores = overall["outer_score"]
     nested = nested_estimate(scores.to_numpy(dtype=float), n_folds=record.n_folds)
-    estimate = EstimateSummary(mean=plain(nested.mean), sd=plain(nested.sd), min=plain(scores.min()),
-                               max=plain(scores.max()), n=nested.n_used, n_folds=nested.n_folds,
+    estimate = EstimateSummary(mean=nested.mean, sd=nested.sd, min=float(scores.min()),
+                               max=float(scores.max()), n=nested.n_used, n_folds=nested.n_folds,
                                n_failed=nested.n_failed, described=nested.described)
     failures = reader.failures(limit=_FAILURES_SHOWN)
     design, families = record.design, [family.name for family in record.families]
