@@ -17,7 +17,7 @@ from watching import open_watched  # tests/web/watching.py: pytest puts this fol
 pytestmark = [pytest.mark.browser, pytest.mark.server]
 
 
-def _start_run(server, name: str, out: Path) -> subprocess.Popen:
+def _launch_assessment(server, name: str, out: Path) -> subprocess.Popen:
     environment = {**os.environ, "PYTHONWARNINGS": "ignore", "FOLDWISE_KEY": server.write_key,
                    "FOLDWISE_TEST_FIT_PAUSE": "0.25",
                    "PYTHONPATH": os.pathsep.join([str(Path(__file__).parent), os.environ.get("PYTHONPATH", "")])}
@@ -37,7 +37,7 @@ def _wait_for_run(server, name: str, timeout: float = 120.0) -> dict:
 
 def test_the_progress_bar_moves_and_the_page_gives_way_to_the_assessment(browser, live_server, tmp_path):
     out = tmp_path / "uuid"
-    child = _start_run(live_server, "run watched in a browser", out)
+    child = _launch_assessment(live_server, "run watched in a browser", out)
     try:
         run = _wait_for_run(live_server, "run watched in a browser")
         index, index_problems = open_watched(browser, live_server.url + "/")
