@@ -71,15 +71,20 @@ def test_distributions_are_horizontal_boxes_with_means_fold_lines_and_shapes(cli
         assert sorted(box["x"]) == pytest.approx(sorted(p["score"] for p in group["points"]))
 
     # One thin line per outer fold, through that fold's score in every row: the pairing the paired tests use.
-    lines = _role(figure, "fold")
-    assert sorted(tuple(line["meta"]["fold"]) for line in lines) == [
-        (repeat, fold) for repeat in range(N_REPEATS) for fold in range(N_OUTER)]
-    for line in lines:
-        repeat, fold = line["meta"]["fold"]
+    # All of them in one trace: fold after fold, one point per row, then None to end the line.
+    [lines] = _role(figure, "fold")
+    assert lines["mode"] == "lines" and lines["connectgaps"] is False
+    folds = [tuple(fold) for fold in lines["meta"]["folds"]]
+    assert sorted(folds) == [(repeat, fold) for repeat in range(N_REPEATS) for fold in range(N_OUTER)]
+    stride = len(groups) + 1
+    assert len(lines["x"]) == len(lines["y"]) == stride * len(folds)
+    for k, (repeat, fold) in enumerate(folds):
+        xs, ys = lines["x"][k * stride:(k + 1) * stride], lines["y"][k * stride:(k + 1) * stride]
         expected = [next(p["score"] for p in group["points"] if (p["repeat"], p["outer_fold"]) == (repeat, fold))
                     for group in groups]
-        assert line["mode"] == "lines" and line["x"] == pytest.approx(expected)
-        assert [round(y) for y in line["y"]] == list(range(len(groups)))
+        assert xs[-1] is None and ys[-1] is None
+        assert xs[:-1] == pytest.approx(expected)
+        assert [round(y) for y in ys[:-1]] == list(range(len(groups)))
 
     # The family colours kept, and a marker shape per family so nothing rests on colour alone.
     points = _role(figure, "points")
