@@ -6,14 +6,14 @@ import math
 from dataclasses import dataclass
 from typing import Annotated
 
+import numpy as np
 import pandas as pd
 from fastapi import APIRouter, Query, Request
 from fastapi.responses import HTMLResponse
 
 from foldwise import frames
-from foldwise.definitions import headline_interval
+from foldwise.definitions import nested_estimate
 from foldwise.stats.paired import PairedResult, compare_paired
-from foldwise.stats.summaries import score_summary
 from foldwise.store import AssessmentReader, AssessmentRecord, StoreReader
 from foldwise.web.answers import AssessmentsComparison
 from foldwise.web.charts.comparison import intervals_figure, paired_strips_figure
@@ -249,15 +249,14 @@ def _summaries(x: Side, y: Side) -> list[CandidateSummaries]:
 
 
 def _summary(scores: pd.Series, sizes: pd.DataFrame) -> CandidateSummary:
-    """Mean and sd of one candidate's outer scores, with the headline interval (the corrected t: the plain t
-    over folds is no confidence interval, least of all with repeats)."""
-    try:
-        summary = score_summary(scores.to_numpy())
-    except ValueError:  # no score left: every fit of this candidate failed
-        return CandidateSummary(n=0, n_missing=int(scores.size), mean=math.nan, sd=math.nan, ci_low=math.nan,
+    """Mean and sd of one candidate's outer scores with the headline interval, as the nested estimate defines them
+    (the plain t over folds is no confidence interval, least of all with repeats)."""
+    values = scores.to_numpy(dtype=float)
+    if np.isnan(values).all():  # no score left: every fit of this candidate failed
+        return CandidateSummary(n=0, n_missing=int(values.size), mean=math.nan, sd=math.nan, ci_low=math.nan,
                                 ci_high=math.nan)
     folds = sizes.reindex(scores.index)
-    interval = headline_interval(scores.to_numpy(dtype=float), n_train=folds["n_train"].to_numpy(dtype=float),
-                                 n_test=folds["n_test"].to_numpy(dtype=float))
-    return CandidateSummary(n=summary.n, n_missing=summary.n_missing, mean=summary.mean, sd=summary.sd,
-                            ci_low=interval.low, ci_high=interval.high)
+    estimate = nested_estimate(values, n_train=folds["n_train"].to_numpy(dtype=float),
+                               n_test=folds["n_test"].to_numpy(dtype=float))
+    return CandidateSummary(n=estimate.n_used, n_missing=estimate.n_failed, mean=estimate.mean, sd=estimate.sd,
+                            ci_low=estimate.interval.low, ci_high=estimate.interval.high)
